@@ -1,0 +1,51 @@
+/**
+ * The source contract: where events come from (Kafka, a file, stdin, the demo).
+ * kafkajs is unmaintained; keeping it behind this interface means it can be replaced
+ * without touching anything that consumes batches.
+ */
+
+/** One raw record as read from a source, before decoding. */
+export interface RawRecord {
+  /** Source partition name, e.g. "latency-0" for Kafka topic latency partition 0, or "file:0". */
+  partition: string;
+  /** Position within the partition (Kafka offset, or 0-based line index of a file). */
+  offset: number;
+  /** Kafka message key (or null). */
+  key: Buffer | null;
+  /** The payload bytes (or a line of text for files). */
+  value: Buffer | string | null;
+  /** Record timestamp, epoch ms (Kafka timestamp; for files, 0 and the decoder reads the ts field). */
+  timestamp: number;
+  headers: Record<string, Buffer | string | undefined>;
+  /** Topic name for Kafka records, else the source's own name. */
+  topic: string;
+}
+
+export interface RecordBatch {
+  partition: string;
+  records: RawRecord[];
+}
+
+export interface SourceHandlers {
+  /** Process one batch; resolve when done. The source does not fetch this partition again until it resolves. */
+  onBatch(batch: RecordBatch): Promise<void>;
+  /** Partitions were assigned: the handler restores state and returns the offsets to resume from (next offset to read). */
+  onAssigned(partitions: string[]): Promise<Map<string, number>>;
+  /** Partitions were revoked: the handler checkpoints them before they go. */
+  onRevoked(partitions: string[]): Promise<void>;
+  /** The source failed and will not recover by itself (e.g. a kafkajs crash without restart). */
+  onFatal(error: Error): void;
+}
+
+export interface Source {
+  readonly name: string;
+  start(handlers: SourceHandlers): Promise<void>;
+  /** Commit positions (next offset to read) once a checkpoint covers them. */
+  commit(positions: Map<string, number>): Promise<void>;
+  /** Stop fetching, let the batch in hand finish, disconnect. */
+  stop(): Promise<void>;
+  /** Consumer lag per partition, if the source knows it. */
+  lag(): Map<string, number>;
+  /** True once the source has joined (consumer group joined, file opened). */
+  ready(): boolean;
+}
