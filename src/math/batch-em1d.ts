@@ -1,0 +1,315 @@
+/**
+ * Batch EM for univariate Gaussian mixtures (Dempster, Laird & Rubin 1977), started by
+ * k-means++ (Arthur & Vassilvitskii 2007) with several restarts, and the number of
+ * components chosen by BIC (Schwarz 1978; lower is better, as scikit-learn's convention).
+ *
+ * The data are standardised before fitting, so the variance floor (like scikit-learn's
+ * reg_covar) is relative to the data's spread and magnitudes from 1e-300 to 1e300 fit alike.
+ */
+import { bic, mixtureFreeParameters } from './bic.js';
+import { Mixture1D } from './mixture1d.js';
+import { Random } from './random.js';
+import { logJacobian, toModel, type ScaleName } from './scale.js';
+import { LOG_SQRT_2PI } from './normal.js';
+
+export interface BatchFitOptions {
+  /** Convergence: stop when the mean log-likelihood per point changes by less than this. */
+  tol?: number;
+  maxIter?: number;
+  restarts?: number;
+  seed?: number;
+  /** Variance floor relative to the data's variance (scikit-learn's reg_covar on standardised data). */
+  regVar?: number;
+}
+
+export interface BatchFit {
+  mixture: Mixture1D;
+  /** Log-likelihood of the data in the stream's own units (Jacobian of the scale included). */
+  logLikelihood: number;
+  bic: number;
+  iterations: number;
+  converged: boolean;
+}
+
+export interface ModelSelection {
+  best: BatchFit;
+  candidates: { k: number; logLikelihood: number; bic: number }[];
+}
+
+const DEFAULTS: Required<BatchFitOptions> = { tol: 1e-6, maxIter: 500, restarts: 4, seed: 1, regVar: 1e-6 };
+
+/** Fit k components to values x (stream units) on the given scale. The caller has rejected values outside the domain. */
+export function fitMixture1D(x: ArrayLike<number>, k: number, scale: ScaleName, options: BatchFitOptions = {}): BatchFit {
+  const opts = { ...DEFAULTS, ...options };
+  const prepared = prepare(x, scale);
+  return fitPrepared(prepared, k, opts, new Random(opts.seed));
+}
+
+/** Fit k = kMin..kMax and choose the lowest BIC. */
+export function selectMixture1D(
+  x: ArrayLike<number>,
+  scale: ScaleName,
+  kMin: number,
+  kMax: number,
+  options: BatchFitOptions = {},
+): ModelSelection {
+  if (!(kMin >= 1 && kMax >= kMin)) throw new Error(`k range ${kMin}..${kMax} is empty`);
+  const opts = { ...DEFAULTS, ...options };
+  const prepared = prepare(x, scale);
+  const rng = new Random(opts.seed);
+  let best: BatchFit | null = null;
+  const candidates: ModelSelection['candidates'] = [];
+  for (let k = kMin; k <= kMax; k++) {
+    if (k > prepared.n) break;
+    const fit = fitPrepared(prepared, k, opts, rng);
+    candidates.push({ k, logLikelihood: fit.logLikelihood, bic: fit.bic });
+    if (best === null || fit.bic < best.bic) best = fit;
+  }
+  if (best === null) throw new Error('no data to fit');
+  return { best, candidates };
+}
+
+/**
+ * Choose among scales by the likelihood of the data in its own units (the Jacobian makes
+ * the likelihoods comparable); every candidate has the same number of parameters, so the
+ * lowest BIC is the highest likelihood.
+ */
+export function selectScaleAndMixture1D(
+  x: ArrayLike<number>,
+  scales: readonly ScaleName[],
+  kMin: number,
+  kMax: number,
+  options: BatchFitOptions = {},
+): ModelSelection & { scale: ScaleName; byScale: { scale: ScaleName; bic: number }[] } {
+  let chosen: (ModelSelection & { scale: ScaleName }) | null = null;
+  const byScale: { scale: ScaleName; bic: number }[] = [];
+  for (const scale of scales) {
+    if (!inDomain(x, scale)) continue;
+    const sel = selectMixture1D(x, scale, kMin, kMax, options);
+    byScale.push({ scale, bic: sel.best.bic });
+    if (chosen === null || sel.best.bic < chosen.best.bic) chosen = { ...sel, scale };
+  }
+  if (chosen === null) throw new Error('no scale admits every value');
+  return { ...chosen, byScale };
+}
+
+export function inDomain(x: ArrayLike<number>, scale: ScaleName): boolean {
+  for (let i = 0; i < x.length; i++) {
+    const v = x[i];
+    if (scale === 'log' && !(v > 0)) return false;
+    if (scale === 'log1p' && !(v > -1)) return false;
+  }
+  return true;
+}
+
+interface Prepared {
+  scale: ScaleName;
+  n: number;
+  /** Standardised model-scale values z = (y - center) / spread. */
+  z: Float64Array;
+  center: number;
+  spread: number;
+  /** Σ log|dy/dx| - n log(spread): turns a log-likelihood of z into one of x. */
+  logLikShift: number;
+}
+
+function prepare(x: ArrayLike<number>, scale: ScaleName): Prepared {
+  const n = x.length;
+  if (n === 0) throw new Error('no data to fit');
+  const y = new Float64Array(n);
+  let jac = 0;
+  for (let i = 0; i < n; i++) {
+    const v = x[i];
+    if (!Number.isFinite(v)) throw new Error(`value ${i} is not finite`);
+    y[i] = toModel(scale, v);
+    jac += logJacobian(scale, v);
+  }
+  // Two-pass centre and spread; scaled by the largest magnitude first so that 1e300 values do not overflow.
+  let maxAbs = 0;
+  for (let i = 0; i < n; i++) maxAbs = Math.max(maxAbs, Math.abs(y[i]));
+  const m = maxAbs > 0 ? maxAbs : 1;
+  let mean = 0;
+  for (let i = 0; i < n; i++) mean += y[i] / m;
+  mean /= n;
+  let varSum = 0;
+  for (let i = 0; i < n; i++) {
+    const d = y[i] / m - mean;
+    varSum += d * d;
+  }
+  const center = mean * m;
+  let spread = Math.sqrt(varSum / n) * m;
+  if (!(spread > 0) || !Number.isFinite(spread)) spread = m > 0 && maxAbs > 0 ? maxAbs * 1e-9 : 1;
+  const z = new Float64Array(n);
+  for (let i = 0; i < n; i++) z[i] = (y[i] - center) / spread;
+  return { scale, n, z, center, spread, logLikShift: jac - n * Math.log(spread) };
+}
+
+function fitPrepared(p: Prepared, k: number, opts: Required<BatchFitOptions>, rng: Random): BatchFit {
+  let best: { w: Float64Array; mu: Float64Array; v: Float64Array; ll: number; it: number; conv: boolean } | null = null;
+  const resp = new Float64Array(p.n * k);
+  for (let r = 0; r < Math.max(1, opts.restarts); r++) {
+    const init = kmeansInit(p.z, k, rng);
+    const run = runEm(p.z, k, init.w, init.mu, init.v, resp, opts);
+    if (best === null || run.ll > best.ll) best = run;
+    if (k === 1) break; // one component has a unique MLE
+  }
+  if (best === null) throw new Error('unreachable');
+  const means = new Float64Array(k);
+  const sds = new Float64Array(k);
+  for (let j = 0; j < k; j++) {
+    means[j] = p.center + p.spread * best.mu[j];
+    sds[j] = p.spread * Math.sqrt(best.v[j]);
+  }
+  const mixture = new Mixture1D(p.scale, best.w, means, sds);
+  const logLikelihood = best.ll + p.logLikShift;
+  return {
+    mixture,
+    logLikelihood,
+    bic: bic(logLikelihood, mixtureFreeParameters(k, 1), p.n),
+    iterations: best.it,
+    converged: best.conv,
+  };
+}
+
+/** k-means++ seeding then a few Lloyd iterations; parameters from the hard partition. */
+function kmeansInit(z: Float64Array, k: number, rng: Random): { w: Float64Array; mu: Float64Array; v: Float64Array } {
+  const n = z.length;
+  const centers = new Float64Array(k);
+  const d2 = new Float64Array(n);
+  centers[0] = z[rng.int(n)];
+  for (let i = 0; i < n; i++) d2[i] = (z[i] - centers[0]) ** 2;
+  for (let c = 1; c < k; c++) {
+    let total = 0;
+    for (let i = 0; i < n; i++) total += d2[i];
+    let pick = 0;
+    if (total > 0) {
+      let u = rng.uniform() * total;
+      for (pick = 0; pick < n - 1; pick++) {
+        u -= d2[pick];
+        if (u < 0) break;
+      }
+    } else pick = rng.int(n);
+    centers[c] = z[pick];
+    for (let i = 0; i < n; i++) d2[i] = Math.min(d2[i], (z[i] - centers[c]) ** 2);
+  }
+  const label = new Int32Array(n);
+  const cnt = new Float64Array(k);
+  const sum = new Float64Array(k);
+  for (let it = 0; it < 10; it++) {
+    cnt.fill(0);
+    sum.fill(0);
+    let changed = false;
+    for (let i = 0; i < n; i++) {
+      let bj = 0;
+      let bd = Infinity;
+      for (let j = 0; j < k; j++) {
+        const d = Math.abs(z[i] - centers[j]);
+        if (d < bd) {
+          bd = d;
+          bj = j;
+        }
+      }
+      if (label[i] !== bj) changed = true;
+      label[i] = bj;
+      cnt[bj] += 1;
+      sum[bj] += z[i];
+    }
+    for (let j = 0; j < k; j++) if (cnt[j] > 0) centers[j] = sum[j] / cnt[j];
+    if (!changed && it > 0) break;
+  }
+  const w = new Float64Array(k);
+  const v = new Float64Array(k);
+  for (let i = 0; i < n; i++) v[label[i]] += (z[i] - centers[label[i]]) ** 2;
+  for (let j = 0; j < k; j++) {
+    w[j] = Math.max(cnt[j], 1) / (n + k);
+    v[j] = cnt[j] > 1 ? v[j] / cnt[j] : 1;
+    if (!(v[j] > 1e-6)) v[j] = 1e-6;
+  }
+  return { w, mu: centers, v };
+}
+
+function runEm(
+  z: Float64Array,
+  k: number,
+  w: Float64Array,
+  mu: Float64Array,
+  v: Float64Array,
+  resp: Float64Array,
+  opts: Required<BatchFitOptions>,
+): { w: Float64Array; mu: Float64Array; v: Float64Array; ll: number; it: number; conv: boolean } {
+  const n = z.length;
+  const logw = new Float64Array(k);
+  const logsd = new Float64Array(k);
+  const inv2v = new Float64Array(k);
+  const nk = new Float64Array(k);
+  let prevMeanLl = -Infinity;
+  let ll = -Infinity;
+  let it = 0;
+  let conv = false;
+  for (it = 1; it <= opts.maxIter; it++) {
+    for (let j = 0; j < k; j++) {
+      logw[j] = Math.log(w[j]);
+      logsd[j] = 0.5 * Math.log(v[j]);
+      inv2v[j] = 0.5 / v[j];
+    }
+    // E-step with log-sum-exp.
+    ll = 0;
+    for (let i = 0; i < n; i++) {
+      const zi = z[i];
+      let max = -Infinity;
+      const base = i * k;
+      for (let j = 0; j < k; j++) {
+        const d = zi - mu[j];
+        const l = logw[j] - logsd[j] - d * d * inv2v[j];
+        resp[base + j] = l;
+        if (l > max) max = l;
+      }
+      let s = 0;
+      for (let j = 0; j < k; j++) {
+        const e = Math.exp(resp[base + j] - max);
+        resp[base + j] = e;
+        s += e;
+      }
+      const inv = 1 / s;
+      for (let j = 0; j < k; j++) resp[base + j] *= inv;
+      ll += max + Math.log(s) - LOG_SQRT_2PI;
+    }
+    const meanLl = ll / n;
+    if (Math.abs(meanLl - prevMeanLl) < opts.tol) {
+      conv = true;
+      break;
+    }
+    prevMeanLl = meanLl;
+    // M-step.
+    nk.fill(0);
+    mu.fill(0);
+    for (let i = 0; i < n; i++) {
+      const base = i * k;
+      for (let j = 0; j < k; j++) {
+        nk[j] += resp[base + j];
+        mu[j] += resp[base + j] * z[i];
+      }
+    }
+    for (let j = 0; j < k; j++) {
+      const nj = nk[j] + 10 * Number.EPSILON;
+      mu[j] /= nj;
+      v[j] = 0;
+    }
+    for (let i = 0; i < n; i++) {
+      const base = i * k;
+      for (let j = 0; j < k; j++) {
+        const d = z[i] - mu[j];
+        v[j] += resp[base + j] * d * d;
+      }
+    }
+    for (let j = 0; j < k; j++) {
+      const nj = nk[j] + 10 * Number.EPSILON;
+      v[j] = v[j] / nj + opts.regVar;
+      w[j] = nj / n;
+    }
+  }
+  let sw = 0;
+  for (let j = 0; j < k; j++) sw += w[j];
+  for (let j = 0; j < k; j++) w[j] /= sw;
+  return { w, mu, v, ll, it: Math.min(it, opts.maxIter), conv };
+}
