@@ -158,3 +158,23 @@ export function startPrometheus(config: string): Promise<RunningServer> {
     '--log.level=warn',
   ]);
 }
+
+/**
+ * Every metric name modewatch can expose, from src/export/metric-names.ts: the listed
+ * families, plus the `_seconds` / `_bytes` variants of location and spread (the unit
+ * suffixes that file documents).
+ */
+export async function knownMetricNames(): Promise<Set<string>> {
+  const { METRICS, UNIT_FACTORS } = await import('../../src/export/metric-names.js');
+  const names = new Set<string>(Object.values(METRICS));
+  const bases = new Set(Object.values(UNIT_FACTORS).map((u) => u.base));
+  for (const family of [METRICS.componentLocation, METRICS.componentSpread]) {
+    for (const b of bases) names.add(`${family}_${b}`);
+  }
+  return names;
+}
+
+/** modewatch_* metric names mentioned in a PromQL expression (recording rule names use colons). */
+export function modewatchNamesIn(expr: string): string[] {
+  return [...expr.matchAll(/\bmodewatch_[a-zA-Z0-9_]*[a-zA-Z0-9]/g)].map((m) => m[0]);
+}
