@@ -103,7 +103,7 @@ export async function* readLineChunks(
 
   try {
     for (;;) {
-      const n = await read(buf, carry, buf.length - carry);
+      const n = await read(buf, carry, chunkBytes);
       const eof = n === 0;
       const filled = carry + n;
       let from = 0;
@@ -141,7 +141,8 @@ export async function* readLineChunks(
           const j = text.indexOf('\n', i);
           const stop = j < 0 ? text.length : j;
           const end = stop > i && text.charCodeAt(stop - 1) === 13 ? stop - 1 : stop;
-          if (end - i > maxLineBytes) push(-1, -1);
+          // UTF-8 takes at most 3 bytes per UTF-16 unit: count bytes only for lines that might be too long.
+          if (end - i > maxLineBytes / 3 && Buffer.byteLength(text.slice(i, end), 'utf8') > maxLineBytes) push(-1, -1);
           else push(i, end);
           if (j < 0) break;
           i = j + 1;
@@ -152,7 +153,7 @@ export async function* readLineChunks(
       const rest = filled - from;
       if (eof) {
         if (rest > 0) {
-          if (rest > maxLineBytes) push(-1, -1);
+          if (rest - (buf[filled - 1] === 13 ? 1 : 0) > maxLineBytes) push(-1, -1);
           else {
             // Append the final line to this chunk's text.
             const base = chunk.text.length + (chunk.count > 0 ? 1 : 0);
@@ -165,7 +166,8 @@ export async function* readLineChunks(
         if (chunk.count > 0) yield chunk;
         return;
       }
-      if (rest > maxLineBytes) {
+      // Too long already (one byte of slack: it may be the '\r' of a '\r\n' whose '\n' is still to come).
+      if (rest > maxLineBytes + 1 || (rest === maxLineBytes + 1 && buf[filled - 1] !== 13)) {
         skipping = true;
         carry = 0;
       } else {
