@@ -8,9 +8,12 @@
 /**
  * Factor the symmetric block `a[aOff .. aOff + d*d)` as L·Lᵀ, writing L (lower triangle,
  * zeros above) into `l[lOff ..]` and 1/L_ii into `invDiag[dOff ..]`.
- * Returns false (leaving the output partly written) when the block is not numerically
- * positive definite.
+ * Returns false (leaving the output partly written) when the block is not robustly positive
+ * definite: a pivot must exceed PIVOT_REL·a_ii, well above the rounding error of the elimination
+ * (about d·eps·a_ii), so that any other backward-stable factorisation agrees with the verdict.
  */
+export const PIVOT_REL = 16 * 8 * Number.EPSILON;
+
 export function choleskyLower(
   a: Float64Array,
   aOff: number,
@@ -27,7 +30,7 @@ export function choleskyLower(
       let s = a[aOff + i * d + j];
       for (let m = 0; m < j; m++) s -= l[ri + m] * l[rj + m];
       if (i === j) {
-        if (!(s > 0) || !Number.isFinite(s)) return false;
+        if (!(s > PIVOT_REL * a[aOff + i * d + i]) || !Number.isFinite(s)) return false;
         const root = Math.sqrt(s);
         l[ri + i] = root;
         invDiag[dOff + i] = 1 / root;

@@ -13,6 +13,15 @@
  * squares and sums of squares over d ≤ 8 coordinates stay finite: (2·2^400)² · 8 ≪ 2^1023. */
 export const FRAME_CLAMP = 2 ** 400;
 
+/** Largest distance from the centre, in stream units, an event keeps before it is clamped:
+ * keeps a component's location and spread in stream units finite (2·2^1000 < 2^1024). */
+export const STREAM_CLAMP = 2 ** 1000;
+
+/** Per-coordinate clamp on |z|: the smaller of FRAME_CLAMP and STREAM_CLAMP / scale. */
+export function frameClamp(scale: number): number {
+  return Math.min(FRAME_CLAMP, STREAM_CLAMP / scale);
+}
+
 /** Bounds for the exponent of a frame scale, inside the normal double range with margin. */
 const MIN_EXP = -1000;
 const MAX_EXP = 1000;

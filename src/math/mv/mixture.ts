@@ -1,6 +1,6 @@
 import type { Random } from '../random.js';
-import { choleskyLower, logDetFromCholesky, mahalanobisSq } from './cholesky.js';
-import { FRAME_CLAMP, powerOfTwoNear, type Frame } from './frame.js';
+import { PIVOT_REL, choleskyLower, logDetFromCholesky, mahalanobisSq } from './cholesky.js';
+import { frameClamp, powerOfTwoNear, type Frame } from './frame.js';
 
 /** Largest supported dimension. */
 export const MV_MAX_DIM = 8;
@@ -40,6 +40,8 @@ export class MvMixture {
   readonly center: Float64Array;
   readonly scale: Float64Array;
   readonly invScale: Float64Array;
+  /** Per-coordinate clamp on |z| (see frame.ts): events further out are winsorised. */
+  readonly zMax: Float64Array;
   readonly regCovar: number;
   readonly frameMeans: Float64Array;
   readonly frameCovariances: Float64Array;
@@ -67,11 +69,13 @@ export class MvMixture {
     this.center = Float64Array.from(frame.center);
     this.scale = Float64Array.from(frame.scale);
     this.invScale = new Float64Array(d);
+    this.zMax = new Float64Array(d);
     for (let i = 0; i < d; i++) {
       const s = this.scale[i];
       if (!(s > 0) || !Number.isFinite(s)) throw new RangeError(`frame scale[${i}] must be positive and finite`);
       if (!Number.isFinite(this.center[i])) throw new RangeError(`frame center[${i}] must be finite`);
       this.invScale[i] = 1 / s;
+      this.zMax[i] = frameClamp(s);
     }
     this.frameMeans = new Float64Array(k * d);
     this.frameCovariances = new Float64Array(k * d * d);
@@ -139,8 +143,9 @@ export class MvMixture {
 
   /**
    * Recompute Cholesky factors, log-determinants and constants after parameters changed.
-   * A covariance that does not factor gets its diagonal raised by regCovar·10^m (m = 0, 1, …)
-   * until it does; the raised covariance is written back so parameters and factors agree.
+   * A covariance that does not factor gets each diagonal entry raised by max(regCovar, its own
+   * rounding level)·10^m, m = 0, 1, … until it does; the raised covariance is written back so
+   * parameters and factors agree.
    */
   refresh(): void {
     for (let j = 0; j < this.k; j++) this.refreshComponent(j);
@@ -152,17 +157,20 @@ export class MvMixture {
     const off = j * d * d;
     const cov = this.frameCovariances;
     if (!choleskyLower(cov, off, d, this.frameChol, off, this.frameInvDiag, j * d)) {
-      let add = this.regCovar;
+      // Raise each diagonal entry by the larger of the floor and its own rounding level (relative
+      // jitter, i.e. on the correlation scale), so that it also works for components far wider
+      // than the frame without swamping the narrower coordinates.
+      let mult = 1;
       let ok = false;
       for (let step = 0; step < MAX_JITTER_STEPS && !ok; step++) {
+        for (let a = 0; a < d * d; a++) if (!Number.isFinite(cov[off + a])) cov[off + a] = 0;
         for (let i = 0; i < d; i++) {
           const ii = off + i * d + i;
-          if (!Number.isFinite(cov[ii]) || cov[ii] < 0) cov[ii] = 0;
-          cov[ii] += add;
+          if (cov[ii] < 0) cov[ii] = 0;
+          cov[ii] += mult * Math.max(this.regCovar, cov[ii] * PIVOT_REL);
         }
-        for (let a = 0; a < d * d; a++) if (!Number.isFinite(cov[off + a])) cov[off + a] = 0;
         ok = choleskyLower(cov, off, d, this.frameChol, off, this.frameInvDiag, j * d);
-        add *= 10;
+        mult *= 10;
       }
       if (!ok) {
         // Last resort: the floor alone (identity times regCovar) always factors.
@@ -179,12 +187,13 @@ export class MvMixture {
     this.logConst[j] = Math.log(w > MIN_WEIGHT ? w : MIN_WEIGHT) - 0.5 * ld - 0.5 * d * LOG_2PI - logScale;
   }
 
-  /** Map x (stream units) into the frame, clamping absurd outliers (see FRAME_CLAMP). */
+  /** Map x (stream units) into the frame, clamping absurd outliers (see frame.ts). */
   toFrame(x: ArrayLike<number>, out: Float64Array): void {
     for (let i = 0; i < this.d; i++) {
       let v = (x[i] - this.center[i]) * this.invScale[i];
-      if (v > FRAME_CLAMP) v = FRAME_CLAMP;
-      else if (v < -FRAME_CLAMP) v = -FRAME_CLAMP;
+      const lim = this.zMax[i];
+      if (v > lim) v = lim;
+      else if (v < -lim) v = -lim;
       out[i] = v;
     }
   }

@@ -1,4 +1,3 @@
-import { FRAME_CLAMP } from './frame.js';
 import { MvMixture } from './mixture.js';
 import { mahalanobisSq } from './cholesky.js';
 
@@ -176,8 +175,9 @@ export class OnlineMvMixture {
       const xi = x[i];
       if (xi - xi !== 0) throw new RangeError(`event value ${i} is not finite (check with validateVector)`);
       let v = (xi - m.center[i]) * m.invScale[i];
-      if (v > FRAME_CLAMP) v = FRAME_CLAMP;
-      else if (v < -FRAME_CLAMP) v = -FRAME_CLAMP;
+      const lim = m.zMax[i];
+      if (v > lim) v = lim;
+      else if (v < -lim) v = -lim;
       z[i] = v;
     }
 
