@@ -336,8 +336,9 @@ export function makeMessageDecoder(config: MessageDecoding): MessageDecoder {
       if (tr !== null) return tr;
       const sr = outerStream(r, out);
       if (sr !== null) return sr;
-      if (text.trim().length === 0) return 'missing_field';
-      return setValues([parseTextNumber(text)], out);
+      const t = text.trim();
+      if (t.length === 0) return 'missing_field';
+      return setValues([parseTextNumber(t)], out);
     };
   }
   if (v.format === 'json') {
