@@ -28,8 +28,10 @@ export interface KafkaConnectionOptions {
   sasl?: KafkaSasl;
   /** TLS to the brokers with the system's CAs. */
   ssl?: boolean;
-  /** Connection timeout in ms (kafkajs default 1000). */
+  /** Connection timeout in ms (default 3000). */
   connectionTimeoutMs?: number;
+  /** Retries of a failed request before kafkajs gives up (kafkajs default 5, with exponential backoff). */
+  retries?: number;
   logger?: KafkaLogger;
 }
 
@@ -42,6 +44,7 @@ export function createKafka(opts: KafkaConnectionOptions): Kafka {
     ssl: opts.ssl === true,
     sasl: opts.sasl ? toKafkajsSasl(opts.sasl) : undefined,
     connectionTimeout: opts.connectionTimeoutMs ?? 3000,
+    retry: opts.retries === undefined ? undefined : { retries: opts.retries },
     logLevel: logLevel.WARN,
     logCreator: () => (entry: LogEntry) => forwardLog(logger, entry),
   });

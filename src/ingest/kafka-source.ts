@@ -43,6 +43,8 @@ export interface KafkaSourceOptions extends KafkaConnectionOptions {
   rebalanceTimeoutMs?: number;
   /** Upper bound on the bytes fetched per partition per request (kafkajs default 1 MiB). */
   maxBytesPerPartition?: number;
+  /** Longest a fetch waits for new records (default 1000 ms; also bounds how long stop() waits for a fetch). */
+  maxWaitTimeMs?: number;
   /** How many partitions' batches are processed at once (default 1). */
   partitionsConsumedConcurrently?: number;
   /** Named topics that do not exist are created with these settings; false: fail instead. Default: broker defaults. */
@@ -95,6 +97,7 @@ export class KafkaSource implements Source {
       heartbeatInterval: opts.heartbeatIntervalMs,
       rebalanceTimeout: opts.rebalanceTimeoutMs,
       maxBytesPerPartition: opts.maxBytesPerPartition,
+      maxWaitTimeInMs: opts.maxWaitTimeMs ?? 1000,
       // Topics are created explicitly (below) with the admin client; never as a side effect of a fetch.
       allowAutoTopicCreation: false,
     });

@@ -254,7 +254,7 @@ export class KafkaCheckpointStore implements CheckpointStore {
     if (pending.size === 0 || n === 0) return { positions, records };
 
     const groupId = `modewatch-state-loader-${randomBytes(6).toString('hex')}`;
-    const consumer = this.kafka.consumer({ groupId, allowAutoTopicCreation: false });
+    const consumer = this.kafka.consumer({ groupId, allowAutoTopicCreation: false, maxWaitTimeInMs: 500 });
     const limit = this.opts.loadTimeoutMs ?? 60_000;
     let failure: Error | null = null;
     try {
