@@ -2,6 +2,7 @@ import { CholeskyDecomposition, Matrix } from 'ml-matrix';
 import { describe, expect, it } from 'vitest';
 import { Random } from '../src/math/random.js';
 import { MvMixture, OnlineMvMixture, fitMvMixture, validateVector } from '../src/math/mv/index.js';
+import { accumulate, accumulate4, weightedLogDensities, weightedLogDensities4 } from '../src/math/mv/online-kernels.js';
 
 const D = 2;
 // Invented 2-D, 3-component mixture with correlated, partly overlapping components.
@@ -131,5 +132,41 @@ describe('caller contract: validateVector before update', () => {
     expect(() => o.update([-Infinity, 1])).toThrow(/not finite/);
     expect(Array.from(o.statScatter)).toEqual(stats);
     expect(o.eventsSeen).toBe(0);
+  });
+});
+
+describe('hot-path kernels', () => {
+  it('the unrolled d = 4 kernels give the same bits as the generic ones', () => {
+    const rng = new Random(12);
+    const k = 3;
+    const d = 4;
+    const covs: number[] = [];
+    const means: number[] = [];
+    for (let j = 0; j < k; j++) {
+      for (let i = 0; i < d; i++) means.push(rng.normal() * 3);
+      for (let a = 0; a < d; a++) for (let b = 0; b < d; b++) covs.push(a === b ? 1 + j : 0.3 / (1 + Math.abs(a - b)));
+    }
+    const m = MvMixture.fromParameters({ weights: [0.2, 0.3, 0.5], means, covariances: covs });
+    const w1 = new Float64Array([0.2, 0.3, 0.5]);
+    const w2 = Float64Array.from(w1);
+    const mean1 = Float64Array.from(m.frameMeans);
+    const mean2 = Float64Array.from(m.frameMeans);
+    const sc1 = new Float64Array(k * 10).map(() => rng.uniform());
+    const sc2 = Float64Array.from(sc1);
+    for (let t = 0; t < 500; t++) {
+      const z = Float64Array.from({ length: d }, () => rng.normal() * 4);
+      const a = new Float64Array(k);
+      const b = new Float64Array(k);
+      const ma = weightedLogDensities(d, k, z, m.frameMeans, m.frameChol, m.frameInvDiag, m.logConst, new Float64Array(d), a);
+      const mb = weightedLogDensities4(k, z, m.frameMeans, m.frameChol, m.frameInvDiag, m.logConst, b);
+      expect(mb).toBe(ma);
+      expect(Array.from(b)).toEqual(Array.from(a));
+      const resp = Float64Array.from([rng.uniform(), rng.uniform(), 0]);
+      accumulate(d, k, z, resp, 0.01, 0.99, w1, mean1, sc1, new Float64Array(d));
+      accumulate4(k, z, resp, 0.01, 0.99, w2, mean2, sc2);
+    }
+    expect(Array.from(w2)).toEqual(Array.from(w1));
+    expect(Array.from(mean2)).toEqual(Array.from(mean1));
+    expect(Array.from(sc2)).toEqual(Array.from(sc1));
   });
 });

@@ -1,6 +1,7 @@
 import type { Random } from '../random.js';
 import { PIVOT_REL, choleskyLower, logDetFromCholesky, mahalanobisSq } from './cholesky.js';
 import { frameClamp, powerOfTwoNear, type Frame } from './frame.js';
+import { expShift, weightedLogDensities, weightedLogDensities4 } from './online-kernels.js';
 
 /** Largest supported dimension. */
 export const MV_MAX_DIM = 8;
@@ -216,36 +217,25 @@ export class MvMixture {
 
   /** log p(x) = log Σ_j w_j N(x; μ_j, Σ_j), by log-sum-exp. */
   logpdf(x: ArrayLike<number>): number {
-    this.toFrame(x, this.z);
-    let max = -Infinity;
-    for (let j = 0; j < this.k; j++) {
-      const v = this.weightedLogPdfFrame(j, this.z);
-      this.lp[j] = v;
-      if (v > max) max = v;
-    }
-    let s = 0;
-    for (let j = 0; j < this.k; j++) s += Math.exp(this.lp[j] - max);
-    return max + Math.log(s);
+    const max = this.weightedLogDensities(x, this.lp);
+    return max + Math.log(expShift(this.k, max, this.lp));
   }
 
   /** Posterior component probabilities for x into out[0..k); returns log p(x). */
   responsibilities(x: ArrayLike<number>, out: Float64Array): number {
-    this.toFrame(x, this.z);
-    let max = -Infinity;
-    for (let j = 0; j < this.k; j++) {
-      const v = this.weightedLogPdfFrame(j, this.z);
-      out[j] = v;
-      if (v > max) max = v;
-    }
-    let s = 0;
-    for (let j = 0; j < this.k; j++) {
-      const e = Math.exp(out[j] - max);
-      out[j] = e;
-      s += e;
-    }
+    const max = this.weightedLogDensities(x, out);
+    const s = expShift(this.k, max, out);
     const inv = 1 / s;
     for (let j = 0; j < this.k; j++) out[j] *= inv;
     return max + Math.log(s);
+  }
+
+  /** out[j] = log w_j N(x; μ_j, Σ_j) (stream units); returns the largest. */
+  private weightedLogDensities(x: ArrayLike<number>, out: Float64Array): number {
+    this.toFrame(x, this.z);
+    if (this.d === 4)
+      return weightedLogDensities4(this.k, this.z, this.frameMeans, this.frameChol, this.frameInvDiag, this.logConst, out);
+    return weightedLogDensities(this.d, this.k, this.z, this.frameMeans, this.frameChol, this.frameInvDiag, this.logConst, this.y, out);
   }
 
   /** Draw one vector (stream units) into out[0..d). */

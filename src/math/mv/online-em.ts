@@ -1,5 +1,5 @@
 import { MvMixture } from './mixture.js';
-import { mahalanobisSq } from './cholesky.js';
+import { accumulate, accumulate4, expShift, weightedLogDensities, weightedLogDensities4 } from './online-kernels.js';
 
 export interface OnlineMvOptions {
   /** Step-size exponent α, 0.5 < α ≤ 1 (Cappé & Moulines 2009; Liang & Klein 2009). Default 0.6. */
@@ -192,55 +192,18 @@ export class OnlineMvMixture {
       else this.gammaFloored = true;
     }
 
-    // E-step with the parameters of the latest M-step, log-sum-exp.
+    // E-step with the parameters of the latest M-step (log-sum-exp), then the statistics:
+    // s ← (1−γ)s + γ·r_j·s(x). Kernels in online-kernels.ts; d = 4 has an unrolled path.
     const resp = this.resp;
-    const diff = this.diff;
-    let max = -Infinity;
-    for (let j = 0; j < k; j++) {
-      const mo = j * d;
-      for (let i = 0; i < d; i++) diff[i] = z[i] - m.frameMeans[mo + i];
-      const q = mahalanobisSq(m.frameChol, j * d * d, m.frameInvDiag, mo, d, diff, this.y);
-      const v = m.logConst[j] - 0.5 * q;
-      resp[j] = v;
-      if (v > max) max = v;
-    }
-    let sum = 0;
-    for (let j = 0; j < k; j++) {
-      const e = Math.exp(resp[j] - max);
-      resp[j] = e;
-      sum += e;
-    }
-
-    // Statistics: s ← (1−γ)s + γ·r_j·s(x), in mean/scatter form (West 1979).
     const keep = 1 - gamma;
-    const gOverSum = gamma / sum;
-    const tri = this.tri;
-    for (let j = 0; j < k; j++) {
-      const oldW = keep * this.statWeight[j];
-      const w = gOverSum * resp[j];
-      const newW = oldW + w;
-      this.statWeight[j] = newW;
-      const po = j * tri;
-      if (!(newW > 0) || w === 0) {
-        for (let p = 0; p < tri; p++) this.statScatter[po + p] *= keep;
-        continue;
-      }
-      const f = w / newW;
-      const c = f * oldW;
-      const mo = j * d;
-      for (let i = 0; i < d; i++) {
-        const dl = z[i] - this.statMean[mo + i];
-        diff[i] = dl;
-        this.statMean[mo + i] += f * dl;
-      }
-      let p = po;
-      for (let a = 0; a < d; a++) {
-        const ca = c * diff[a];
-        for (let b = 0; b <= a; b++) {
-          this.statScatter[p] = keep * this.statScatter[p] + ca * diff[b];
-          p++;
-        }
-      }
+    if (d === 4) {
+      const max = weightedLogDensities4(k, z, m.frameMeans, m.frameChol, m.frameInvDiag, m.logConst, resp);
+      const sum = expShift(k, max, resp);
+      accumulate4(k, z, resp, gamma / sum, keep, this.statWeight, this.statMean, this.statScatter);
+    } else {
+      const max = weightedLogDensities(d, k, z, m.frameMeans, m.frameChol, m.frameInvDiag, m.logConst, this.y, resp);
+      const sum = expShift(k, max, resp);
+      accumulate(d, k, z, resp, gamma / sum, keep, this.statWeight, this.statMean, this.statScatter, this.diff);
     }
 
     if (++this.sinceMStep >= s.miniBatch) this.mStep();
