@@ -30,6 +30,7 @@ export function standardNormalCdf(z: number): number {
 /** Complementary error function (Cody 1969 rational approximations). */
 export function erfc(x: number): number {
   const ax = Math.abs(x);
+  if (ax > 27) return x < 0 ? 2 : 0; // erfc(27) < 1e-318: below the smallest double
   let result: number;
   if (ax < 0.5) {
     // erf by a rational function in x^2

@@ -89,6 +89,7 @@ export class OnlineMixture1D {
   /** Density (standardised units) of the last event, or 0 when it was computed in the log domain. */
   private lastDensity = 0;
   private lastLogDensityFallback = 0;
+  private lastZ = 0;
 
   constructor(scale: ScaleName, center: number, unit: number, options: Partial<StepwiseOptions> = {}) {
     const o = { ...DEFAULT_STEPWISE, ...options };
@@ -142,13 +143,27 @@ export class OnlineMixture1D {
 
   /** Learn from one value y on the model scale, at event time ts (ms). Returns this. */
   update(y: number, ts: number): this {
+    this.evaluate(y);
+    return this.learn(ts);
+  }
+
+  /**
+   * E-step only: responsibilities and density of y under the current parameters, kept for
+   * read-out (responsibility(i), lastLogDensity) and for a following learn(). Detectors read
+   * them between the two calls, so their statistics use parameters fixed before the event.
+   */
+  evaluate(y: number): void {
     const k = this.kActive;
-    if (k === 0) return this;
     const b = this.buf;
+    if (k === 0) {
+      this.lastDensity = 0;
+      this.lastLogDensityFallback = -Infinity;
+      return;
+    }
     let z = (y - this.center) / this.unit;
     if (z > Z_CLIP) z = Z_CLIP;
     else if (z < -Z_CLIP) z = -Z_CLIP;
-
+    this.lastZ = z;
     // E-step in the linear domain (fast); log domain when everything underflows.
     let total = 0;
     for (let j = 0, o = 0; j < k; j++, o += FIELDS) {
@@ -170,7 +185,14 @@ export class OnlineMixture1D {
     } else {
       this.logDomainResponsibilities(z, bg);
     }
+  }
 
+  /** M-step for the value given to the last evaluate(). */
+  learn(ts: number): this {
+    const k = this.kActive;
+    if (k === 0) return this;
+    const b = this.buf;
+    const z = this.lastZ;
     const gamma = this.stepSize(ts);
     const keep = 1 - gamma;
     // M-step on the statistics, per component (stable weighted mean/variance form).
@@ -284,6 +306,19 @@ export class OnlineMixture1D {
   /** Responsibility of component i for the last event (after background). */
   responsibility(i: number): number {
     return this.buf[i * FIELDS + RESP];
+  }
+
+  /** Background weight ε and its density at model-scale y (a Cauchy, see the header). */
+  get backgroundWeight(): number {
+    return this.bgWeight;
+  }
+  backgroundLogPdf(y: number): number {
+    const u = (y - this.center) / (this.unit * this.bgScale);
+    return -Math.log(Math.PI * this.bgScale * this.unit * (1 + u * u));
+  }
+  /** P(background ≤ y): the Cauchy cdf. */
+  backgroundCdf(y: number): number {
+    return 0.5 + Math.atan((y - this.center) / (this.unit * this.bgScale)) / Math.PI;
   }
 
   /** Mixture log density on the model scale at y, Gaussians only (no background). */

@@ -1,0 +1,642 @@
+/**
+ * One stream's monitor: it owns a slow reference model (what is normal) and a fast current
+ * model (what is happening), both stepwise-EM mixtures on the stream's scale, and the
+ * detectors that compare events against the reference:
+ *  - per reference component, CUSUMs of the exact mixture log-likelihood ratio for its weight
+ *    going up, down, or to almost nothing, and for its location moving up or down by a set
+ *    number of its sds (Page 1954; the ratio of two mixtures that differ in one component is
+ *    1 + r_k (f'_k/f_k - 1) with r_k its responsibility, so each costs one log per event);
+ *  - a novelty grid for new modes (novelty-grid.ts), which gives birth to a component in the
+ *    current model;
+ *  - a fit CUSUM on the standardised surprise -log p_ref(y), for changes none of the others names.
+ * The reference learns only while every statistic is quiet, so a change in progress does not
+ * teach it; once a change has fired for long enough, the reference absorbs the current model.
+ *
+ * Everything depends on the events and their timestamps only (housekeeping runs every 256
+ * accepted events, counted, never timed), so a replay and a resume from a checkpoint give the
+ * same models and alerts. The per-event path allocates nothing.
+ */
+import { selectMixture1D, selectScaleAndMixture1D } from '../math/batch-em1d.js';
+import { bhattacharyyaGaussian } from '../math/distances.js';
+import { Mixture1D, summarizeComponent } from '../math/mixture1d.js';
+import type { ValueRejection } from '../math/reject.js';
+import { checkValue, toModel, type ScaleName } from '../math/scale.js';
+import { OnlineMixture1D } from '../math/stepwise-em1d.js';
+import type { AlertEvidence, AlertKind, ComponentView } from './alert.js';
+import { AlertBook, type ActiveAlert, type TransitionListener } from './alert-book.js';
+import { CusumBank } from './cusum-bank.js';
+import type { MonitorConfig } from './monitor-config.js';
+import { NoveltyGrid } from './novelty-grid.js';
+
+/** The CUSUMs kept per reference component. */
+const W_UP = 0;
+const W_DOWN = 1;
+const VANISH = 2;
+const LOC_UP = 3;
+const LOC_DOWN = 4;
+const PER_COMPONENT = 5;
+const STAT_NAMES = ['cusum_weight_up', 'cusum_weight_down', 'cusum_weight_vanish', 'cusum_location_up', 'cusum_location_down'];
+const STAT_KINDS: AlertKind[] = ['weight_shift', 'weight_shift', 'mode_vanished', 'location_shift', 'location_shift'];
+
+/** Per reference component: ratios a = w'/w and b = (1-w')/(1-w) for the three weight alternatives. */
+const C_UP_A = 0;
+const C_UP_B = 1;
+const C_DN_A = 2;
+const C_DN_B = 3;
+const C_VA_A = 4;
+const C_VA_B = 5;
+const CONSTS = 6;
+
+/** Alert sources that are not a CUSUM index. */
+const SOURCE_FIT = -1;
+const SOURCE_BORN = -2;
+
+const HOUSEKEEPING_EVERY = 256;
+const FIT_SLACK = 0.5;
+const FIT_CLIP = 3;
+
+export type MonitorPhase = 'bootstrap' | 'warmup' | 'armed';
+
+export class StreamMonitor {
+  readonly stream: string;
+  readonly config: MonitorConfig;
+  private phase: MonitorPhase = 'bootstrap';
+  private scaleName: ScaleName;
+  private boot: Float64Array | null;
+  private bootCount = 0;
+  private ref: OnlineMixture1D | null = null;
+  private cur: OnlineMixture1D | null = null;
+  private readonly shifts: CusumBank;
+  private readonly owned: Uint8Array;
+  private readonly fit = new CusumBank(1);
+  private readonly grid = new NoveltyGrid();
+  private readonly consts: Float64Array;
+  private surpriseMean = 0;
+  private surpriseVar = 1;
+  private surpriseCount = 0;
+  private accepted = 0;
+  private armedAt = 0;
+  private lastTs = 0;
+  private lastOffset = -1;
+  private readonly book: AlertBook;
+  private pendingCount = 0;
+
+  constructor(stream: string, config: MonitorConfig, listener: TransitionListener) {
+    this.stream = stream;
+    this.config = config;
+    this.scaleName = config.scale === 'auto' ? 'identity' : config.scale;
+    this.shifts = new CusumBank(config.capacity * PER_COMPONENT);
+    this.owned = new Uint8Array(config.capacity * PER_COMPONENT);
+    this.consts = new Float64Array(config.capacity * CONSTS);
+    this.book = new AlertBook(stream, listener);
+    this.boot = new Float64Array(config.bootstrapEvents);
+    if (config.known !== null) this.startFromKnown();
+  }
+
+  get scale(): ScaleName {
+    return this.scaleName;
+  }
+  get state(): MonitorPhase {
+    return this.phase;
+  }
+  get eventsAccepted(): number {
+    return this.accepted;
+  }
+  get reference(): OnlineMixture1D | null {
+    return this.ref;
+  }
+  get current(): OnlineMixture1D | null {
+    return this.cur;
+  }
+  get lastEventTs(): number {
+    return this.lastTs;
+  }
+  alerts(): ActiveAlert[] {
+    return this.book.list();
+  }
+
+  /** Largest statistic over its threshold (>= 1 means some detector is over threshold). */
+  shiftScore(): number {
+    if (this.phase !== 'armed') return 0;
+    const h = this.config.threshold;
+    return Math.max(this.shifts.max() / h, this.grid.max() / h, this.fit.value(0) / this.config.fitThreshold);
+  }
+
+  /** Feed one value (stream units) at event time ts (ms) from input position offset. Returns a rejection reason or null. */
+  observe(x: number, ts: number, offset: number): ValueRejection | null {
+    if (this.phase === 'bootstrap') {
+      if (!Number.isFinite(x)) return 'not_finite';
+      if (this.config.scale !== 'auto') {
+        const r = checkValue(this.config.scale, x);
+        if (r !== null) return r;
+      }
+      (this.boot as Float64Array)[this.bootCount++] = x;
+      this.accepted++;
+      this.lastTs = ts;
+      this.lastOffset = offset;
+      if (this.bootCount === this.config.bootstrapEvents) this.bootstrap();
+      return null;
+    }
+    const rej = checkValue(this.scaleName, x);
+    if (rej !== null) return rej;
+    const ref = this.ref as OnlineMixture1D;
+    const cur = this.cur as OnlineMixture1D;
+    const y = toModel(this.scaleName, x);
+    this.accepted++;
+    this.lastTs = ts;
+    this.lastOffset = offset;
+
+    ref.evaluate(y);
+    cur.evaluate(y);
+    let quiet = true;
+    if (this.phase === 'armed') quiet = this.detect(ref, y, ts, offset);
+    else if (this.accepted >= this.config.warmupEvents) this.arm();
+
+    if (quiet && this.config.known === null) ref.learn(ts);
+    if (quiet) this.learnSurprise(ref);
+    cur.learn(ts);
+    if (this.accepted % HOUSEKEEPING_EVERY === 0) this.housekeeping(ts, offset, quiet);
+    return null;
+  }
+
+  /** Declare the current state normal: the reference takes the current model and every alert resolves. */
+  rebaseline(): void {
+    if (this.phase === 'bootstrap') return;
+    this.absorb(this.lastTs, this.lastOffset, 'rebaselined');
+  }
+
+  // ---- detection (per event) ----
+
+  /** Runs every detector on y; returns true when every statistic is below half its threshold. */
+  private detect(ref: OnlineMixture1D, y: number, ts: number, offset: number): boolean {
+    const cfg = this.config;
+    const h = cfg.threshold;
+    const k = ref.k;
+    let rG = 0;
+    for (let j = 0; j < k; j++) rG += ref.responsibility(j);
+    const lambda = cfg.locationShiftSds;
+    const shiftPenalty = Math.exp(-0.5 * lambda * lambda);
+    let maxStat = 0;
+    for (let j = 0; j < k; j++) {
+      const r = ref.responsibility(j);
+      const rOther = rG - r;
+      const c = j * CONSTS;
+      const base = j * PER_COMPONENT;
+      const cs = this.consts;
+      maxStat = Math.max(
+        maxStat,
+        this.step(base + W_UP, Math.log(1 + r * (cs[c + C_UP_A] - 1) + rOther * (cs[c + C_UP_B] - 1)), offset, ts),
+        this.step(base + W_DOWN, Math.log(1 + r * (cs[c + C_DN_A] - 1) + rOther * (cs[c + C_DN_B] - 1)), offset, ts),
+        this.step(base + VANISH, Math.log(1 + r * (cs[c + C_VA_A] - 1) + rOther * (cs[c + C_VA_B] - 1)), offset, ts),
+      );
+      // Location: f'(y)/f(y) = exp(±λz - λ²/2) for a shift of ±λ sd; clamp so far events cannot overflow.
+      let lz = (lambda * (y - ref.mean(j))) / ref.sd(j);
+      if (lz > 50) lz = 50;
+      else if (lz < -50) lz = -50;
+      const e = Math.exp(lz);
+      maxStat = Math.max(
+        maxStat,
+        this.step(base + LOC_UP, Math.log(1 + r * (e * shiftPenalty - 1)), offset, ts),
+        this.step(base + LOC_DOWN, Math.log(1 + r * (shiftPenalty / e - 1)), offset, ts),
+      );
+    }
+    // Fit: standardised surprise, clipped so one wild event cannot decide alone.
+    let z = (-ref.lastLogDensity - this.surpriseMean) / Math.sqrt(this.surpriseVar);
+    if (z > FIT_CLIP) z = FIT_CLIP;
+    else if (z < -FIT_CLIP) z = -FIT_CLIP;
+    const fitStat = this.fit.step(0, z - FIT_SLACK, offset, ts);
+    if (fitStat >= cfg.fitThreshold && this.fitOwnerless()) this.openFit(ts);
+
+    const bin = this.grid.step(y, offset, ts, h);
+    if (bin >= 0) this.onNovelty(bin, ts, offset);
+
+    if (this.pendingCount > 0) this.confirmPending(ts, offset);
+    return maxStat < 0.5 * h && fitStat < 0.5 * cfg.fitThreshold && this.book.size === 0;
+  }
+
+  /** One CUSUM step; opens an alert on a crossing, resolves or caps one that is active. */
+  private step(i: number, llr: number, offset: number, ts: number): number {
+    const h = this.config.threshold;
+    const s = this.shifts.step(i, llr, offset, ts);
+    const o = this.owned[i];
+    if (o !== 0) {
+      // 1: an alert owns it; 2: it crossed while suppressed. Either way it is capped so it can come back down.
+      if (s < 0.25 * h) {
+        if (o === 1) this.resolveOwned(i, ts, offset);
+        else this.owned[i] = 0;
+      } else this.shifts.cap(i, 2 * h);
+    } else if (s >= h) this.openShift(i, ts);
+    return s;
+  }
+
+  private fitOwnerless(): boolean {
+    return this.book.get(this.book.key('poor_fit', null)) === undefined;
+  }
+
+  // ---- alerts (rare: allocation is fine here) ----
+
+  private openShift(i: number, ts: number): void {
+    const ref = this.ref as OnlineMixture1D;
+    const j = Math.floor(i / PER_COMPONENT);
+    const type = i % PER_COMPONENT;
+    const kind = STAT_KINDS[type];
+    const id = ref.id(j);
+    // Suppressed: the other direction already owns the alert, or the stream has an active alert and
+    // further shifts are mostly its consequences (the reference is frozen against a changed stream);
+    // only a vanishing mode is still worth an alert of its own.
+    if (this.book.get(this.book.key(kind, id)) !== undefined || (type !== VANISH && this.book.size > 0)) {
+      this.owned[i] = 2;
+      return;
+    }
+    // A vanishing component also shows as a weight decrease: the more specific alert wins.
+    if (type === VANISH) {
+      const ws = this.book.get(this.book.key('weight_shift', id));
+      if (ws !== undefined && ws.state === 'pending') {
+        this.owned[ws.source] = 0;
+        this.pendingCount--;
+        this.book.cancel(ws);
+      }
+    }
+    this.owned[i] = 1;
+    this.pendingCount++;
+    this.book.open(kind, id, i, this.accepted, ts, this.shiftEvidence(i));
+  }
+
+  private openFit(ts: number): void {
+    if (this.book.size > 0) return; // another alert already explains the misfit
+    this.pendingCount++;
+    this.book.open('poor_fit', null, SOURCE_FIT, this.accepted, ts, this.fitEvidence());
+  }
+
+  private onNovelty(bin: number, ts: number, offset: number): void {
+    const cand = this.grid.candidate(bin);
+    const ref = this.ref as OnlineMixture1D;
+    const cur = this.cur as OnlineMixture1D;
+    this.grid.clear(bin);
+    // Not new if a component born earlier already sits there (a mode in the making). While the stream
+    // has an active alert the reference is frozen against a changed stream, so a candidate must also be
+    // unexplained by the current model.
+    const busy = this.book.size > 0;
+    for (let j = 0; j < cur.k; j++) {
+      const near = Math.abs(cand.mean - cur.mean(j)) / cur.sd(j);
+      if (near < (busy ? 3 : ref.indexOf(cur.id(j)) < 0 ? 2 : 0)) return;
+    }
+    // Inside a reference component it is that component gaining weight, which the weight CUSUMs judge.
+    // A reference component the current model had lost comes back under its own id, without an alert.
+    for (let j = 0; j < ref.k; j++) {
+      if (Math.abs(cand.mean - ref.mean(j)) < 1.5 * ref.sd(j)) {
+        if (cur.indexOf(ref.id(j)) < 0) cur.addComponent(ref.mean(j), ref.sd(j), cand.weight, ref.id(j));
+        return;
+      }
+    }
+    const id = cur.addComponent(cand.mean, cand.sd, Math.max(cand.weight, this.config.minNewModeWeight));
+    if (id < 0) return; // at capacity
+    const a = this.book.open('mode_emerged', id, SOURCE_BORN, this.accepted, ts, this.emergedEvidence(id, cand.statistic));
+    a.evidence.firstEvidenceOffset = cand.firstOffset;
+    a.evidence.firstEvidenceTs = cand.firstTs;
+    a.startsAt = cand.firstTs;
+    this.pendingCount++;
+    void offset;
+  }
+
+  private confirmPending(ts: number, offset: number): void {
+    const h = this.config.threshold;
+    for (const a of this.book.list()) {
+      if (a.state !== 'pending' || this.accepted - a.pendingAt < this.config.confirmEvents) continue;
+      this.pendingCount--;
+      if (a.source >= 0) {
+        if (this.shifts.value(a.source) >= h) this.book.fire(a, this.accepted, ts, offset, this.shiftEvidence(a.source, a.evidence));
+        else {
+          this.owned[a.source] = 0;
+          this.book.cancel(a);
+        }
+      } else if (a.source === SOURCE_FIT) {
+        if (this.fit.value(0) >= this.config.fitThreshold) this.book.fire(a, this.accepted, ts, offset, this.fitEvidence(a.evidence));
+        else this.book.cancel(a);
+      } else {
+        const cur = this.cur as OnlineMixture1D;
+        const j = cur.indexOf(a.componentId ?? -1);
+        if (j >= 0 && cur.weight(j) >= 0.5 * this.config.minNewModeWeight) {
+          this.book.fire(a, this.accepted, ts, offset, this.emergedEvidence(a.componentId ?? -1, a.evidence.value, a.evidence));
+        } else {
+          if (j >= 0) cur.removeComponent(j);
+          this.book.cancel(a);
+        }
+      }
+    }
+  }
+
+  private resolveOwned(i: number, ts: number, offset: number): void {
+    this.owned[i] = 0;
+    for (const a of this.book.list()) {
+      if (a.source !== i) continue;
+      if (a.state === 'pending') {
+        this.pendingCount--;
+        this.book.cancel(a);
+      } else this.book.resolve(a, ts, offset, 'recovered', this.shiftEvidence(i, a.evidence));
+    }
+  }
+
+  // ---- evidence ----
+
+  views(model: OnlineMixture1D | null): ComponentView[] {
+    if (model === null) return [];
+    const out: ComponentView[] = [];
+    for (let j = 0; j < model.k; j++) {
+      const s = summarizeComponent(this.scaleName, model.weight(j), model.mean(j), model.sd(j));
+      out.push({ id: model.id(j), weight: s.weight, location: s.location, spread: s.spread, mean: s.mean });
+    }
+    return out.sort((a, b) => a.location - b.location);
+  }
+
+  private baseEvidence(statistic: string, value: number, threshold: number, componentId: number | null, firstTs: number, firstOffset: number, summary: string): AlertEvidence {
+    return {
+      statistic,
+      value,
+      threshold,
+      componentId,
+      before: this.views(this.ref),
+      after: this.views(this.cur),
+      firstEvidenceTs: firstTs,
+      firstEvidenceOffset: firstOffset,
+      summary,
+    };
+  }
+
+  private shiftEvidence(i: number, prev?: AlertEvidence): AlertEvidence {
+    const ref = this.ref as OnlineMixture1D;
+    const j = Math.floor(i / PER_COMPONENT);
+    const type = i % PER_COMPONENT;
+    const id = ref.id(j);
+    const before = summarizeComponent(this.scaleName, ref.weight(j), ref.mean(j), ref.sd(j));
+    const cur = this.cur as OnlineMixture1D;
+    const cj = cur.indexOf(id);
+    const after = cj >= 0 ? summarizeComponent(this.scaleName, cur.weight(cj), cur.mean(cj), cur.sd(cj)) : null;
+    const loc = fmt(before.location);
+    let summary: string;
+    if (type === VANISH) summary = `the mode near ${loc} (weight ${pct(before.weight)}) is vanishing${after ? `: now ${pct(after.weight)}` : ''}`;
+    else if (type === W_UP || type === W_DOWN) {
+      summary = `the mode near ${loc} ${type === W_UP ? 'gains' : 'loses'} weight: ${pct(before.weight)} -> ${after ? pct(after.weight) : 'gone'}`;
+    } else summary = `the mode near ${loc} moves ${type === LOC_UP ? 'up' : 'down'}${after ? `: location ${loc} -> ${fmt(after.location)}` : ''}`;
+    return this.baseEvidence(
+      STAT_NAMES[type],
+      this.shifts.value(i),
+      this.config.threshold,
+      id,
+      prev ? prev.firstEvidenceTs : this.shifts.startTs(i),
+      prev ? prev.firstEvidenceOffset : this.shifts.startOffset(i),
+      summary,
+    );
+  }
+
+  private fitEvidence(prev?: AlertEvidence): AlertEvidence {
+    return this.baseEvidence(
+      'cusum_surprise',
+      this.fit.value(0),
+      this.config.fitThreshold,
+      null,
+      prev ? prev.firstEvidenceTs : this.fit.startTs(0),
+      prev ? prev.firstEvidenceOffset : this.fit.startOffset(0),
+      'events are less likely under the reference than usual, and no single component change explains it',
+    );
+  }
+
+  private emergedEvidence(id: number, statistic: number, prev?: AlertEvidence): AlertEvidence {
+    const cur = this.cur as OnlineMixture1D;
+    const j = cur.indexOf(id);
+    const s = j >= 0 ? summarizeComponent(this.scaleName, cur.weight(j), cur.mean(j), cur.sd(j)) : null;
+    const summary = s ? `a new mode near ${fmt(s.location)} carries ${pct(s.weight)} of events` : 'a new mode appeared';
+    return this.baseEvidence('novelty_excess', statistic, this.config.threshold, id, prev ? prev.firstEvidenceTs : this.lastTs, prev ? prev.firstEvidenceOffset : this.lastOffset, summary);
+  }
+
+  // ---- lifecycle ----
+
+  private bootstrap(): void {
+    const cfg = this.config;
+    const data = (this.boot as Float64Array).subarray(0, this.bootCount);
+    const opts = { seed: cfg.seed, restarts: 3, tol: 1e-5 };
+    let mixture: Mixture1D;
+    if (cfg.scale === 'auto') {
+      const sel = selectScaleAndMixture1D(data, ['identity', 'log', 'log1p'], 1, cfg.maxComponents, opts);
+      mixture = sel.best.mixture;
+      this.scaleName = sel.scale;
+    } else {
+      mixture = selectMixture1D(data, cfg.scale, 1, cfg.maxComponents, opts).best.mixture;
+    }
+    this.boot = null;
+    this.ref = OnlineMixture1D.fromMixture(mixture, this.modelOptions(cfg.referenceWindow, cfg.referenceHalfLifeMs), this.bootCount);
+    this.cur = OnlineMixture1D.fromMixture(mixture, this.modelOptions(cfg.currentWindow, cfg.currentHalfLifeMs), this.bootCount);
+    this.phase = 'warmup';
+    if (this.accepted >= cfg.warmupEvents) this.arm();
+  }
+
+  private startFromKnown(): void {
+    const known = this.config.known ?? [];
+    const log = known[0].family === 'lognormal';
+    this.scaleName = log ? 'log' : 'identity';
+    const m = new Mixture1D(
+      this.scaleName,
+      known.map((c) => c.weight),
+      known.map((c) => (log ? Math.log(c.location) : c.location)),
+      known.map((c) => c.spread),
+    );
+    this.boot = null;
+    this.ref = OnlineMixture1D.fromMixture(m, this.modelOptions(this.config.referenceWindow, this.config.referenceHalfLifeMs), 1e9);
+    this.cur = OnlineMixture1D.fromMixture(m, this.modelOptions(this.config.currentWindow, this.config.currentHalfLifeMs), 0);
+    this.phase = 'warmup';
+  }
+
+  private modelOptions(window: number, halfLifeMs: number) {
+    return { window, halfLifeMs, backgroundWeight: this.config.outlierWeight, capacity: this.config.capacity };
+  }
+
+  private arm(): void {
+    this.phase = 'armed';
+    this.armedAt = this.accepted;
+    this.resetDetectors();
+  }
+
+  private resetDetectors(): void {
+    const ref = this.ref as OnlineMixture1D;
+    this.shifts.resetAll();
+    this.owned.fill(0);
+    this.fit.resetAll();
+    this.grid.configure(ref, this.config.minNewModeWeight);
+    this.computeConsts();
+  }
+
+  private computeConsts(): void {
+    const ref = this.ref as OnlineMixture1D;
+    const cfg = this.config;
+    for (let j = 0; j < ref.k; j++) {
+      const w = Math.min(Math.max(ref.weight(j), 1e-9), 1 - 1e-9);
+      const delta = Math.max(cfg.weightShiftAbsolute, cfg.weightShiftRelative * Math.min(w, 1 - w));
+      const up = Math.min(w + delta, 0.5 * (w + 1));
+      const down = Math.max(w - delta, 0.5 * w);
+      const van = w * cfg.vanishFraction;
+      const c = j * CONSTS;
+      this.consts[c + C_UP_A] = up / w;
+      this.consts[c + C_UP_B] = (1 - up) / (1 - w);
+      this.consts[c + C_DN_A] = down / w;
+      this.consts[c + C_DN_B] = (1 - down) / (1 - w);
+      this.consts[c + C_VA_A] = van / w;
+      this.consts[c + C_VA_B] = (1 - van) / (1 - w);
+    }
+  }
+
+  /** Running mean and variance of the surprise under the reference, learned while quiet. */
+  private learnSurprise(ref: OnlineMixture1D): void {
+    const s = -ref.lastLogDensity;
+    if (!Number.isFinite(s)) return;
+    this.surpriseCount++;
+    const g = Math.max(1 / this.surpriseCount, 1 / this.config.referenceWindow);
+    const d = s - this.surpriseMean;
+    this.surpriseMean += g * d;
+    this.surpriseVar = Math.max((1 - g) * (this.surpriseVar + g * d * d), 1e-6);
+  }
+
+  private housekeeping(ts: number, offset: number, quiet: boolean): void {
+    const cfg = this.config;
+    const cur = this.cur as OnlineMixture1D;
+    // Prune components of the current model whose weight is negligible (a reference component keeps its id for a return).
+    const pruneBelow = Math.min(0.002, cfg.minNewModeWeight / 5);
+    for (let j = cur.k - 1; j >= 0 && cur.k > 1; j--) {
+      if (cur.weight(j) < pruneBelow) {
+        const id = cur.id(j);
+        cur.removeComponent(j);
+        const a = this.book.get(this.book.key('mode_emerged', id));
+        if (a !== undefined) {
+          if (a.state === 'pending') this.pendingCount--;
+          this.book.resolve(a, ts, offset, 'recovered', this.emergedEvidence(id, 0, a.evidence));
+        }
+      }
+    }
+    // Merge components of the current model that have come to overlap.
+    for (let a = 0; a < cur.k; a++) {
+      for (let b = a + 1; b < cur.k; b++) {
+        if (bhattacharyyaGaussian(cur.mean(a), cur.sd(a), cur.mean(b), cur.sd(b)) < 0.02) {
+          cur.mergeComponents(cur.id(a) < cur.id(b) ? a : b, cur.id(a) < cur.id(b) ? b : a);
+          b = cur.k;
+          a = cur.k;
+        }
+      }
+    }
+    if (this.phase !== 'armed') return;
+    if (quiet && cfg.known === null) {
+      this.computeConsts();
+      this.grid.refreshRates(this.ref as OnlineMixture1D, cfg.minNewModeWeight);
+    }
+    // Absorb a change that has been firing long enough: it is the new normal.
+    for (const a of this.book.list()) {
+      if (a.state !== 'firing') continue;
+      const long = this.accepted - a.firingAt >= cfg.absorbAfterEvents || (cfg.absorbAfterMs > 0 && ts - a.firingTs >= cfg.absorbAfterMs);
+      if (long) {
+        this.absorb(ts, offset, 'absorbed');
+        break;
+      }
+    }
+  }
+
+  private absorb(ts: number, offset: number, resolution: 'absorbed' | 'rebaselined'): void {
+    const cur = this.cur as OnlineMixture1D;
+    const refOpts = this.modelOptions(this.config.referenceWindow, this.config.referenceHalfLifeMs);
+    const state = cur.exportState();
+    this.ref = OnlineMixture1D.importState({ ...state, options: { ...state.options, ...refOpts }, t: Math.max(state.t, this.accepted) });
+    for (const a of this.book.list()) {
+      if (a.state === 'pending') this.book.cancel(a);
+      else this.book.resolve(a, ts, offset, resolution, { ...a.evidence, before: this.views(this.ref), after: this.views(this.cur) });
+    }
+    this.pendingCount = 0;
+    if (this.phase === 'armed') this.resetDetectors();
+  }
+
+  // ---- state ----
+
+  exportState(): MonitorState {
+    return {
+      version: 1,
+      stream: this.stream,
+      phase: this.phase,
+      scale: this.scaleName,
+      boot: this.boot === null ? null : Array.from(this.boot.subarray(0, this.bootCount)),
+      ref: this.ref === null ? null : this.ref.exportState(),
+      cur: this.cur === null ? null : this.cur.exportState(),
+      shifts: this.shifts.exportState(),
+      owned: Array.from(this.owned),
+      fit: this.fit.exportState(),
+      grid: this.grid.exportState(),
+      consts: Array.from(this.consts),
+      surpriseMean: this.surpriseMean,
+      surpriseVar: this.surpriseVar,
+      surpriseCount: this.surpriseCount,
+      accepted: this.accepted,
+      armedAt: this.armedAt,
+      lastTs: this.lastTs,
+      lastOffset: this.lastOffset,
+      pendingCount: this.pendingCount,
+      alerts: this.book.exportState(),
+    };
+  }
+
+  static importState(s: MonitorState, config: MonitorConfig, listener: TransitionListener): StreamMonitor {
+    if (s.version !== 1) throw new Error(`monitor state version ${s.version} is not supported`);
+    const m = new StreamMonitor(s.stream, { ...config, known: null }, listener);
+    (m as { config: MonitorConfig }).config = config;
+    m.phase = s.phase;
+    m.scaleName = s.scale;
+    if (s.boot !== null) {
+      m.boot = new Float64Array(config.bootstrapEvents);
+      m.boot.set(s.boot);
+      m.bootCount = s.boot.length;
+    } else m.boot = null;
+    m.ref = s.ref === null ? null : OnlineMixture1D.importState(s.ref);
+    m.cur = s.cur === null ? null : OnlineMixture1D.importState(s.cur);
+    m.shifts.importState(s.shifts);
+    m.owned.set(s.owned);
+    m.fit.importState(s.fit);
+    m.grid.importState(s.grid);
+    m.consts.set(s.consts);
+    m.surpriseMean = s.surpriseMean;
+    m.surpriseVar = s.surpriseVar;
+    m.surpriseCount = s.surpriseCount;
+    m.accepted = s.accepted;
+    m.armedAt = s.armedAt;
+    m.lastTs = s.lastTs;
+    m.lastOffset = s.lastOffset;
+    m.pendingCount = s.pendingCount;
+    m.book.importState(s.alerts);
+    return m;
+  }
+}
+
+export interface MonitorState {
+  version: 1;
+  stream: string;
+  phase: MonitorPhase;
+  scale: ScaleName;
+  boot: number[] | null;
+  ref: ReturnType<OnlineMixture1D['exportState']> | null;
+  cur: ReturnType<OnlineMixture1D['exportState']> | null;
+  shifts: number[];
+  owned: number[];
+  fit: number[];
+  grid: ReturnType<NoveltyGrid['exportState']>;
+  consts: number[];
+  surpriseMean: number;
+  surpriseVar: number;
+  surpriseCount: number;
+  accepted: number;
+  armedAt: number;
+  lastTs: number;
+  lastOffset: number;
+  pendingCount: number;
+  alerts: ActiveAlert[];
+}
+
+function pct(w: number): string {
+  return `${(100 * w).toFixed(1)} %`;
+}
+
+function fmt(x: number): string {
+  return Math.abs(x) >= 1e5 || (Math.abs(x) < 1e-3 && x !== 0) ? x.toExponential(3) : Number(x.toPrecision(4)).toString();
+}
