@@ -229,6 +229,15 @@ describe('delivery queue bounds', () => {
     expect(sink.stats()).toEqual({ delivered: 0, failed: 0, dropped: 4, queueLength: 0 });
   });
 
+  it('aborts an attempt that takes longer than attemptTimeoutMs and retries it', async () => {
+    const srv = await TestServer.start(() => 'hang');
+    const sink = new WebhookSink({ url: srv.url, delivery: { attemptTimeoutMs: 100, maxAttempts: 2, baseDelayMs: 10 } });
+    closers.push(() => sink.close());
+    sink.publish(transition());
+    await until(() => sink.stats().failed === 1, 3000);
+    expect(srv.seen).toHaveLength(2);
+  });
+
   it('batches up to maxBatch items per delivery, in order', async () => {
     const batches: number[][] = [];
     let release: () => void = () => {};

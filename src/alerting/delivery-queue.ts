@@ -191,9 +191,17 @@ export class DeliveryQueue<T> {
 
   private async attempts(batch: T[]): Promise<boolean> {
     for (let attempt = 1; ; attempt++) {
-      const signal = AbortSignal.any([this.stop.signal, AbortSignal.timeout(this.attemptTimeoutMs)]);
+      // One controller per attempt, aborted by its own timeout or by close(); listeners are
+      // removed after each attempt so a long-lived daemon does not pile them up.
+      const attemptCtl = new AbortController();
+      const onStop = () => attemptCtl.abort(this.stop.signal.reason);
+      this.stop.signal.addEventListener('abort', onStop, { once: true });
+      const timer = setTimeout(
+        () => attemptCtl.abort(new Error(`attempt timed out after ${this.attemptTimeoutMs} ms`)),
+        this.attemptTimeoutMs,
+      );
       try {
-        await this.deliver(batch, signal);
+        await this.deliver(batch, attemptCtl.signal);
         return true;
       } catch (err) {
         if (this.stop.signal.aborted) return false;
@@ -203,10 +211,13 @@ export class DeliveryQueue<T> {
           last ? 'alert delivery failed, giving up' : 'alert delivery failed, will retry',
         );
         if (last) return false;
-        const delay = backoffDelay(attempt, this.baseDelayMs, this.maxDelayMs, this.random());
-        await sleep(delay, this.stop.signal);
-        if (this.stop.signal.aborted) return false;
+      } finally {
+        clearTimeout(timer);
+        this.stop.signal.removeEventListener('abort', onStop);
       }
+      const delay = backoffDelay(attempt, this.baseDelayMs, this.maxDelayMs, this.random());
+      await sleep(delay, this.stop.signal);
+      if (this.stop.signal.aborted) return false;
     }
   }
 }

@@ -11,6 +11,7 @@
  *     max_version: TLS13                              # optional
  *   http_server_config:     # optional
  *     headers: { X-Frame-Options: deny }
+ *     http2: true           # accepted for compatibility with the format; not used by modewatch
  *   basic_auth_users:       # optional: user -> bcrypt hash
  *     prometheus: $2y$10$...
  *
