@@ -158,6 +158,19 @@ describe('file source', () => {
     await expect(new FileSource({ paths: [join(dir, 'nope.ndjson')] }).start(collector().handlers)).rejects.toThrow(/cannot read input file .*nope\.ndjson: ENOENT/);
   });
 
+  it('a file whose first line is garbage or oversized is read as NDJSON, the line counted as rejected', async () => {
+    const rejects: [DecodeRejection, number][] = [];
+    let accepted = 0;
+    const p = file(`${'x'.repeat(300)}\nhello\n{"ts":1,"stream":"a","value":1}\n`);
+    const counts = await decodeFile(p, 0, () => accepted++, (r, o) => rejects.push([r, o]), { lineReader: { maxLineBytes: 100 } });
+    expect(rejects).toEqual([
+      ['oversized', 0],
+      ['unparseable', 1],
+    ]);
+    expect(accepted).toBe(1);
+    expect(counts.format).toBe('ndjson');
+  });
+
   it('decodeFile gives the same events and rejections as the record path', async () => {
     const p = file(csvText);
     const events: string[] = [];

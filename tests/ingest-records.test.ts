@@ -286,7 +286,11 @@ describe('format detection and interning', () => {
     expect(detectFormat('stream,value,ts')).toBe('csv');
     expect(detectFormat('hello world')).toBeNull();
     expect(decoderForFirstLine('ts,stream,value').skipFirst).toBe(true);
-    expect(() => decoderForFirstLine('garbage')).toThrow(/cannot tell the record format/);
+    // An unrecognised first line is a malformed NDJSON record, counted, not fatal.
+    const g = decoderForFirstLine('garbage');
+    expect(g).toMatchObject({ format: 'ndjson', skipFirst: false });
+    expect(g.decoder.decode('garbage', 0, 7, new EventSlot())).toBe('unparseable');
+    expect(() => decoderForFirstLine('ts,stream', 'csv')).toThrow(/no column named "value"/);
   });
   it('returns the same string object for the same name, and stays bounded', () => {
     const i = new StreamInterner(4);

@@ -103,9 +103,8 @@ export class FileSource implements Source {
           const index = c.firstIndex + k;
           const s = c.starts[k];
           if (index === 0) {
-            if (s < 0) throw new Error(`${path}: the first line is longer than the line limit; cannot tell the format`);
-            const first = c.text.slice(s, c.ends[k]);
-            const d = decoderForFirstLine(first, this.opts.format);
+            // An oversized first line cannot be a CSV header: the file is taken as NDJSON unless told otherwise.
+            const d = decoderForFirstLine(s < 0 ? '' : c.text.slice(s, c.ends[k]), this.opts.format);
             this.decoders.set(partition, d.decoder);
             skipFirst = d.skipFirst;
             if (skipFirst) continue;
@@ -198,8 +197,7 @@ export async function decodeFile(
     let k = 0;
     if (decoder === null) {
       const s = c.starts[0];
-      if (s < 0) throw new Error(`${path}: the first line is longer than the line limit; cannot tell the format`);
-      const d = decoderForFirstLine(c.text.slice(s, c.ends[0]), options.format);
+      const d = decoderForFirstLine(s < 0 ? '' : c.text.slice(s, c.ends[0]), options.format);
       decoder = d.decoder;
       counts.format = d.format;
       if (d.skipFirst) k = 1;

@@ -654,11 +654,11 @@ export interface RangeDecoder {
 
 /**
  * The decoder for a file whose first line is `firstLine`. For CSV the first line is the header and must not be
- * decoded as data (`skipFirst` says so). Throws when the format cannot be recognised.
+ * decoded as data (`skipFirst` says so). A first line that is neither an object nor a CSV header is taken as a
+ * malformed NDJSON record (it is then counted as unparseable, not fatal).
  */
 export function decoderForFirstLine(firstLine: string, format?: RecordFormat): { decoder: RangeDecoder; skipFirst: boolean; format: RecordFormat } {
-  const f = format ?? detectFormat(firstLine);
-  if (f === 'ndjson') return { decoder: new NdjsonDecoder(), skipFirst: false, format: f };
+  const f = format ?? detectFormat(firstLine) ?? 'ndjson';
   if (f === 'csv') return { decoder: new CsvDecoder(parseCsvHeader(firstLine)), skipFirst: true, format: f };
-  throw new Error(`cannot tell the record format from the first line ${JSON.stringify(firstLine.slice(0, 80))}: expected NDJSON objects or a CSV header ts,stream,value`);
+  return { decoder: new NdjsonDecoder(), skipFirst: false, format: f };
 }
