@@ -42,32 +42,47 @@ export async function loadScenarioFile(path: string, events?: number): Promise<S
   return parseScenario(raw, path, events);
 }
 
-async function writeAll(out: Writable, lines: Iterable<string>): Promise<void> {
-  let block: string[] = [];
-  const flush = async (): Promise<void> => {
-    const ok = out.write(block.join('\n') + '\n');
-    block = [];
-    if (!ok) await new Promise<void>((resolve, reject) => {
-      const onDrain = (): void => {
-        out.off('error', onError);
-        resolve();
-      };
-      const onError = (e: Error): void => {
-        out.off('drain', onDrain);
-        reject(e);
-      };
-      out.once('drain', onDrain);
-      out.once('error', onError);
-    });
+/**
+ * Writes the lines in blocks, waiting for 'drain'. Returns false when the reader went away (EPIPE, e.g. piped
+ * into `head`): that ends the output quietly rather than as an error.
+ */
+async function writeAll(out: Writable, lines: Iterable<string>): Promise<boolean> {
+  let failure: NodeJS.ErrnoException | null = null;
+  let wake: (() => void) | null = null;
+  const onError = (e: NodeJS.ErrnoException): void => {
+    failure = e;
+    wake?.();
   };
-  for (const l of lines) {
-    block.push(l);
-    if (block.length >= 4096) await flush();
+  const onDrain = (): void => wake?.();
+  out.on('error', onError);
+  out.on('drain', onDrain);
+  try {
+    let block: string[] = [];
+    const flush = async (): Promise<void> => {
+      const ok = out.write(block.join('\n') + '\n');
+      block = [];
+      if (!ok && failure === null) await new Promise<void>((resolve) => (wake = resolve));
+      wake = null;
+    };
+    for (const l of lines) {
+      block.push(l);
+      if (block.length >= 4096) await flush();
+      if (failure !== null) break;
+    }
+    if (block.length > 0 && failure === null) await flush();
+    const f = failure as NodeJS.ErrnoException | null;
+    if (f !== null) {
+      if (f.code === 'EPIPE') return false;
+      throw f;
+    }
+    return true;
+  } finally {
+    out.off('error', onError);
+    out.off('drain', onDrain);
   }
-  if (block.length > 0) await flush();
 }
 
-/** Runs the command; returns the ground truth. `stdout` is injectable for tests. */
+/** Runs the command; returns the ground truth (null for --list or when the reader closed early). `stdout` is injectable for tests. */
 export async function runSimulate(opts: SimulateOptions, stdout: Writable = process.stdout): Promise<GroundTruth | null> {
   if (opts.list === true) {
     for (const name of SCENARIO_NAMES) stdout.write(`${name}\n    ${SCENARIOS[name].description}\n`);
@@ -101,8 +116,9 @@ export async function runSimulate(opts: SimulateOptions, stdout: Writable = proc
   function* lines(): Generator<string> {
     for (const r of run.records()) yield r.line;
   }
-  await writeAll(out, lines());
+  const complete = await writeAll(out, lines());
   if (toFile) await new Promise<void>((resolve, reject) => out.end((e?: Error | null) => (e ? reject(e) : resolve())));
+  if (!complete) return null;
   const truth = run.truth();
   if (opts.truth !== undefined) {
     try {
