@@ -151,6 +151,7 @@ export class StreamMonitor {
     let quiet = true;
     if (this.phase === 'armed') quiet = this.detect(ref, y, ts, offset);
     else if (this.accepted >= this.config.warmupEvents) this.arm();
+    else this.learnStructure(y, offset, ts);
 
     if (quiet && this.config.known === null) ref.learn(ts);
     if (quiet) this.learnSurprise(ref);
@@ -427,7 +428,26 @@ export class StreamMonitor {
     this.ref = OnlineMixture1D.fromMixture(mixture, this.modelOptions(cfg.referenceWindow, cfg.referenceHalfLifeMs), this.bootCount);
     this.cur = OnlineMixture1D.fromMixture(mixture, this.modelOptions(cfg.currentWindow, cfg.currentHalfLifeMs), this.bootCount);
     this.phase = 'warmup';
+    this.grid.configure(this.ref, cfg.minNewModeWeight);
     if (this.accepted >= cfg.warmupEvents) this.arm();
+  }
+
+  /**
+   * During warm-up, a region the bootstrap fit explains badly (a heavy tail, a mode too small for the first
+   * batch) gets a component in both models, silently: it is part of what is normal.
+   */
+  private learnStructure(y: number, offset: number, ts: number): void {
+    if (this.config.known !== null) return;
+    const bin = this.grid.step(y, offset, ts, this.config.threshold);
+    if (bin < 0) return;
+    const cand = this.grid.candidate(bin);
+    this.grid.clear(bin);
+    const ref = this.ref as OnlineMixture1D;
+    const cur = this.cur as OnlineMixture1D;
+    for (let j = 0; j < ref.k; j++) if (Math.abs(cand.mean - ref.mean(j)) < 2 * ref.sd(j)) return;
+    const id = ref.addComponent(cand.mean, cand.sd, Math.max(cand.weight, this.config.minNewModeWeight));
+    if (id > 0) cur.addComponent(cand.mean, cand.sd, Math.max(cand.weight, this.config.minNewModeWeight), id);
+    this.grid.configure(ref, this.config.minNewModeWeight);
   }
 
   private startFromKnown(): void {
@@ -447,7 +467,9 @@ export class StreamMonitor {
   }
 
   private modelOptions(window: number, halfLifeMs: number) {
-    return { window, halfLifeMs, backgroundWeight: this.config.outlierWeight, capacity: this.config.capacity };
+    // α = 1 makes the step 1/(t + t0) until it reaches 1/window: a running average of everything seen, then a
+    // window. A smaller α forgets far faster than the window says for millions of events (γ_t = t^-α > 1/W).
+    return { alpha: 1, window, halfLifeMs, backgroundWeight: this.config.outlierWeight, capacity: this.config.capacity };
   }
 
   private arm(): void {
