@@ -1,0 +1,53 @@
+/**
+ * The whole /metrics body: the daemon's health families (prom-client) followed by the model
+ * families (written directly). The two sets of names are disjoint, so the concatenation is one
+ * valid exposition.
+ */
+import type { StreamRegistry } from '../streams/stream-registry.js';
+import type { DaemonHealth } from './daemon-health.js';
+import { DaemonMetrics, type DaemonMetricsOptions } from './daemon-metrics.js';
+import { renderModelMetrics } from './model-exposition.js';
+
+/** Content type of the text format 0.0.4 (what Prometheus asks for by default besides OpenMetrics). */
+export const EXPOSITION_CONTENT_TYPE = 'text/plain; version=0.0.4; charset=utf-8';
+
+export class MetricsExporter {
+  readonly daemon: DaemonMetrics;
+
+  constructor(
+    readonly registry: StreamRegistry,
+    readonly health: DaemonHealth,
+    options: DaemonMetricsOptions = {},
+  ) {
+    this.daemon = new DaemonMetrics(registry, health, options);
+  }
+
+  async render(): Promise<string> {
+    const t0 = performance.now();
+    const model = renderModelMetrics(this.registry);
+    let daemon = await this.daemon.render();
+    if (daemon !== '' && !daemon.endsWith('\n')) daemon += '\n';
+    this.daemon.lastScrapeSeconds = (performance.now() - t0) / 1000;
+    return daemon + model;
+  }
+}
+
+const exporters = new WeakMap<StreamRegistry, WeakMap<DaemonHealth, MetricsExporter>>();
+
+/**
+ * Render /metrics for a registry and a health source. The prom-client side (and its process
+ * metrics) is created once per (registry, health) pair and reused by later calls.
+ */
+export function renderMetrics(registry: StreamRegistry, health: DaemonHealth): Promise<string> {
+  let byHealth = exporters.get(registry);
+  if (byHealth === undefined) {
+    byHealth = new WeakMap();
+    exporters.set(registry, byHealth);
+  }
+  let exporter = byHealth.get(health);
+  if (exporter === undefined) {
+    exporter = new MetricsExporter(registry, health);
+    byHealth.set(health, exporter);
+  }
+  return exporter.render();
+}
