@@ -90,7 +90,7 @@ async function tryTestcontainers(probeMs: number, log: (l: string) => void): Pro
     // A dev dependency: absent from a production install, and it may fail to load on some Node versions.
     tc = await import('testcontainers');
   } catch (e) {
-    return { why: `testcontainers could not be loaded (${firstLine(e)})` };
+    return { why: `testcontainers could not be loaded on Node ${process.version} (${firstLine(e)})` };
   }
   // getContainerRuntimeClient() has no timeout of its own: race it against a timer.
   let timer: NodeJS.Timeout | undefined;
@@ -186,7 +186,7 @@ function clusterId(): string {
 
 /**
  * Runs java under a small bash wrapper that also stops it when our stdin pipe closes, i.e. when this Node
- * process dies by any means (SIGKILL included), so a killed test run does not leave a broker behind.
+ * process dies by any means (SIGKILL included), so a killed test run leaves neither a broker nor its temp dir.
  * SIGTERM to the wrapper is passed on to java (a clean Kafka shutdown).
  */
 const WRAPPER = [
@@ -199,6 +199,8 @@ const WRAPPER = [
   'rc=0',
   'while kill -0 $jp 2>/dev/null; do wait $jp; rc=$?; done',
   'kill $wp 2>/dev/null',
+  // The broker's temp dir goes with it, also when no Node process is left to remove it.
+  'if [ -n "$MODEWATCH_KAFKA_TMP" ]; then rm -rf "$MODEWATCH_KAFKA_TMP"; fi',
   'exit $rc',
 ].join('\n');
 
@@ -245,6 +247,7 @@ async function launchOnce(libs: string, readyTimeoutMs: number, log: (l: string)
   const out = createWriteStream(logFile);
   const child = spawn('bash', ['-c', WRAPPER, 'kafka-broker', 'java', ...jvm, ...cp, 'kafka.Kafka', join(dir, 'server.properties')], {
     stdio: ['pipe', 'pipe', 'pipe'],
+    env: { ...process.env, MODEWATCH_KAFKA_TMP: dir },
   });
   let tail = '';
   let started = false;

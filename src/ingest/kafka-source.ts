@@ -49,6 +49,8 @@ export interface KafkaSourceOptions extends KafkaConnectionOptions {
   partitionsConsumedConcurrently?: number;
   /** Named topics that do not exist are created with these settings; false: fail instead. Default: broker defaults. */
   createTopics?: { numPartitions?: number; replicationFactor?: number } | false;
+  /** start() rejects if the group is not joined within this time (default 60000 ms). */
+  joinTimeoutMs?: number;
   /** Lag refresh period in ms (default 5000). */
   lagRefreshMs?: number;
   logger?: KafkaLogger;
@@ -84,6 +86,7 @@ export class KafkaSource implements Source {
   private lagRefreshedAt = 0;
   private lagRefreshing = false;
   private readonly removeListeners: (() => void)[] = [];
+  private firstJoin: { resolve: () => void; reject: (e: Error) => void } | null = null;
 
   constructor(private readonly opts: KafkaSourceOptions) {
     validate(opts);
@@ -128,20 +131,39 @@ export class KafkaSource implements Source {
           return;
         }
         this.fatal = true;
-        this.handlers?.onFatal(new Error(`Kafka consumer stopped and will not restart: ${error.message}`, { cause: error }));
+        const fatal = new Error(`Kafka consumer stopped and will not restart: ${error.message}`, { cause: error });
+        this.firstJoin?.reject(fatal);
+        this.handlers?.onFatal(fatal);
       }),
     );
 
-    await this.consumer.connect();
-    await this.consumer.subscribe({ topics: this.opts.topics, fromBeginning: this.opts.fromBeginning ?? true });
-    // run() resolves once the first join is done; the assignment work it queued is awaited too.
-    await this.consumer.run({
-      autoCommit: false,
-      eachBatchAutoResolve: false,
-      partitionsConsumedConcurrently: this.opts.partitionsConsumedConcurrently ?? 1,
-      eachBatch: (payload) => this.track(this.onBatch(payload)),
+    // run() resolves after the first join attempt, which may have failed and be retried (e.g. a fresh broker
+    // whose group coordinator is not up yet): wait for the first applied assignment instead, bounded.
+    const limit = this.opts.joinTimeoutMs ?? 60_000;
+    let timer: NodeJS.Timeout | undefined;
+    const joined = new Promise<void>((resolve, reject) => {
+      this.firstJoin = { resolve, reject };
+      timer = setTimeout(() => reject(new Error(`Kafka source: group ${this.opts.groupId} not joined within ${limit} ms`)), limit);
     });
-    await this.assignment;
+    try {
+      await this.consumer.connect();
+      await this.consumer.subscribe({ topics: this.opts.topics, fromBeginning: this.opts.fromBeginning ?? true });
+      await this.consumer.run({
+        autoCommit: false,
+        eachBatchAutoResolve: false,
+        partitionsConsumedConcurrently: this.opts.partitionsConsumedConcurrently ?? 1,
+        eachBatch: (payload) => this.track(this.onBatch(payload)),
+      });
+      await joined;
+    } catch (e) {
+      this.stopping = true;
+      await this.consumer.disconnect().catch(() => {});
+      await this.admin.disconnect().catch(() => {});
+      throw e;
+    } finally {
+      clearTimeout(timer);
+      this.firstJoin = null;
+    }
   }
 
   async commit(positions: Map<string, number>): Promise<void> {
@@ -226,7 +248,9 @@ export class KafkaSource implements Source {
       .then(() => this.applyAssignment(assigned))
       .catch((e: unknown) => {
         this.fatal = true;
-        this.handlers?.onFatal(new Error(`partition assignment failed: ${errMessage(e)}`, { cause: e }));
+        const fatal = new Error(`partition assignment failed: ${errMessage(e)}`, { cause: e });
+        this.firstJoin?.reject(fatal);
+        this.handlers?.onFatal(fatal);
       });
   }
 
@@ -268,6 +292,7 @@ export class KafkaSource implements Source {
     }
     this.log.info({ assigned: [...now.keys()], revoked, added }, 'kafka partitions assigned');
     this.joined = true;
+    this.firstJoin?.resolve();
   }
 
   private seek(name: string, tp: TopicPartition, offset: number): void {
