@@ -45,7 +45,11 @@ const C_DN_A = 2;
 const C_DN_B = 3;
 const C_VA_A = 4;
 const C_VA_B = 5;
-const CONSTS = 6;
+/** ln b of each alternative: the ratio for an event that is plainly another component's. */
+const C_UP_LB = 6;
+const C_DN_LB = 7;
+const C_VA_LB = 8;
+const CONSTS = 9;
 
 /** Alert sources that are not a CUSUM index. */
 const SOURCE_FIT = -1;
@@ -148,13 +152,14 @@ export class StreamMonitor {
 
     ref.evaluate(y);
     cur.evaluate(y);
+    const surprise = -ref.lastLogDensity;
     let quiet = true;
-    if (this.phase === 'armed') quiet = this.detect(ref, y, ts, offset);
+    if (this.phase === 'armed') quiet = this.detect(ref, y, surprise, ts, offset);
     else if (this.accepted >= this.config.warmupEvents) this.arm();
     else this.learnStructure(y, offset, ts);
 
     if (quiet && this.config.known === null) ref.learn(ts);
-    if (quiet) this.learnSurprise(ref);
+    if (quiet) this.learnSurprise(surprise);
     cur.learn(ts);
     if (this.accepted % HOUSEKEEPING_EVERY === 0) this.housekeeping(ts, offset, quiet);
     return null;
@@ -169,7 +174,7 @@ export class StreamMonitor {
   // ---- detection (per event) ----
 
   /** Runs every detector on y; returns true when every statistic is below half its threshold. */
-  private detect(ref: OnlineMixture1D, y: number, ts: number, offset: number): boolean {
+  private detect(ref: OnlineMixture1D, y: number, surprise: number, ts: number, offset: number): boolean {
     const cfg = this.config;
     const h = cfg.threshold;
     const k = ref.k;
@@ -178,12 +183,26 @@ export class StreamMonitor {
     const lambda = cfg.locationShiftSds;
     const shiftPenalty = Math.exp(-0.5 * lambda * lambda);
     let maxStat = 0;
+    const cs = this.consts;
     for (let j = 0; j < k; j++) {
       const r = ref.responsibility(j);
-      const rOther = rG - r;
       const c = j * CONSTS;
       const base = j * PER_COMPONENT;
-      const cs = this.consts;
+      let lz = (lambda * (y - ref.mean(j))) / ref.sd(j);
+      if (r < 1e-12 && rG > 1 - 1e-9 && lz < 13 && lz > -13) {
+        // The event is plainly another component's: every ratio is its constant for "not this one" (within 1e-9),
+        // and the location ratio is 1 (r·e^|λz| < 1e-6). Most events take this path in well-separated mixtures.
+        maxStat = Math.max(
+          maxStat,
+          this.step(base + W_UP, cs[c + C_UP_LB], offset, ts),
+          this.step(base + W_DOWN, cs[c + C_DN_LB], offset, ts),
+          this.step(base + VANISH, cs[c + C_VA_LB], offset, ts),
+          this.step(base + LOC_UP, 0, offset, ts),
+          this.step(base + LOC_DOWN, 0, offset, ts),
+        );
+        continue;
+      }
+      const rOther = rG - r;
       maxStat = Math.max(
         maxStat,
         this.step(base + W_UP, Math.log(1 + r * (cs[c + C_UP_A] - 1) + rOther * (cs[c + C_UP_B] - 1)), offset, ts),
@@ -191,7 +210,6 @@ export class StreamMonitor {
         this.step(base + VANISH, Math.log(1 + r * (cs[c + C_VA_A] - 1) + rOther * (cs[c + C_VA_B] - 1)), offset, ts),
       );
       // Location: f'(y)/f(y) = exp(±λz - λ²/2) for a shift of ±λ sd; clamp so far events cannot overflow.
-      let lz = (lambda * (y - ref.mean(j))) / ref.sd(j);
       if (lz > 50) lz = 50;
       else if (lz < -50) lz = -50;
       const e = Math.exp(lz);
@@ -202,7 +220,7 @@ export class StreamMonitor {
       );
     }
     // Fit: standardised surprise, clipped so one wild event cannot decide alone.
-    let z = (-ref.lastLogDensity - this.surpriseMean) / Math.sqrt(this.surpriseVar);
+    let z = (surprise - this.surpriseMean) / Math.sqrt(this.surpriseVar);
     if (z > FIT_CLIP) z = FIT_CLIP;
     else if (z < -FIT_CLIP) z = -FIT_CLIP;
     const fitStat = this.fit.step(0, z - FIT_SLACK, offset, ts);
@@ -503,12 +521,14 @@ export class StreamMonitor {
       this.consts[c + C_DN_B] = (1 - down) / (1 - w);
       this.consts[c + C_VA_A] = van / w;
       this.consts[c + C_VA_B] = (1 - van) / (1 - w);
+      this.consts[c + C_UP_LB] = Math.log(this.consts[c + C_UP_B]);
+      this.consts[c + C_DN_LB] = Math.log(this.consts[c + C_DN_B]);
+      this.consts[c + C_VA_LB] = Math.log(this.consts[c + C_VA_B]);
     }
   }
 
   /** Running mean and variance of the surprise under the reference, learned while quiet. */
-  private learnSurprise(ref: OnlineMixture1D): void {
-    const s = -ref.lastLogDensity;
+  private learnSurprise(s: number): void {
     if (!Number.isFinite(s)) return;
     this.surpriseCount++;
     const g = Math.max(1 / this.surpriseCount, 1 / this.config.referenceWindow);
