@@ -4,7 +4,10 @@
  */
 import yargs from 'yargs';
 import { hideBin } from 'yargs/helpers';
+import { configCommand } from './config-command.js';
+import { fitCommand } from './fit-command.js';
 import { replayCommand } from './replay-command.js';
+import { runCommand } from './run-command.js';
 import { simulateCommand } from './simulate-command.js';
 import { UsageError } from './usage-error.js';
 import { VERSION } from './version.js';
@@ -13,8 +16,11 @@ async function main(argv: string[]): Promise<void> {
   await yargs(argv)
     .scriptName('modewatch')
     .usage('$0 <command> [options]\n\nWatches numeric event streams for new, vanished and shifted modes.')
+    .command(runCommand)
     .command(replayCommand)
+    .command(fitCommand)
     .command(simulateCommand)
+    .command(configCommand)
     .demandCommand(1, 'Name a command (see --help).')
     .strict()
     .version(VERSION)
