@@ -158,7 +158,8 @@ function saslSection(ctx: Ctx, raw: unknown): SaslConfig | undefined {
   if (!o) return undefined;
   const mechanism = oneOf(ps, o, 'mechanism', base, SASL_MECHANISMS);
   const username = str(ps, o, 'username', base);
-  const password = secret(ctx, o, base, 'passwordEnv', 'passwordFile', true);
+  // An inline password was reported above; do not also say that none was given.
+  const password = secret(ctx, o, base, 'passwordEnv', 'passwordFile', !('password' in o));
   if (mechanism === undefined || username === undefined || !password) return undefined;
   return { mechanism, username, password };
 }

@@ -118,13 +118,19 @@ export class ProblemList {
     if (this.doc === null || this.lines === null) return null;
     let node: unknown = this.doc.contents;
     let range: readonly number[] | null | undefined = (node as Node | null)?.range;
+    // A missing key is placed on the key of the mapping that lacks it (`kafka:`), not on that mapping's first entry.
+    let parentKey: readonly number[] | null | undefined = null;
     for (let i = 0; i < path.length; i++) {
       const seg = path[i];
       const last = i === path.length - 1;
       if (isMap(node)) {
         const pair = node.items.find((it) => isPair(it) && isScalar(it.key) && String(it.key.value) === String(seg));
-        if (!pair) break;
+        if (!pair) {
+          range = parentKey ?? range;
+          break;
+        }
         const key = pair.key as Node;
+        parentKey = key.range;
         if (last && atKey) {
           range = key.range;
           break;
@@ -139,6 +145,7 @@ export class ProblemList {
         if (!item) break;
         node = item;
         range = item.range;
+        parentKey = item.range;
       } else break;
     }
     if (!range) return null;
