@@ -190,7 +190,14 @@ export class DaemonMetrics {
         this.set(health.ready() ? 1 : 0);
       },
     });
-    if (options.processMetrics ?? true) collectDefaultMetrics({ register: this.promRegistry, prefix: `${PREFIX}_` });
+    if (options.processMetrics ?? true) {
+      collectDefaultMetrics({ register: this.promRegistry, prefix: `${PREFIX}_` });
+      // prom-client names three gauges *_total, which the naming rules keep for counters (promtool
+      // check metrics reports them); the same numbers are in nodejs_active_{handles,requests,resources}.
+      for (const n of ['nodejs_active_handles_total', 'nodejs_active_requests_total', 'nodejs_active_resources_total']) {
+        this.promRegistry.removeSingleMetric(`${PREFIX}_${n}`);
+      }
+    }
   }
 
   async render(): Promise<string> {
