@@ -471,3 +471,13 @@ describe('stream rules', () => {
     expect(r('svc.size').monitor.threshold).toBe(DEFAULT_MONITOR_CONFIG.threshold);
   });
 });
+
+describe('hostile input', () => {
+  it('an alias bomb is a problem, not a hang or a crash', () => {
+    const lines = ['a0: &a0 [x, x, x, x, x, x, x, x, x, x]'];
+    for (let i = 1; i < 9; i++) lines.push(`a${i}: &a${i} [${Array.from({ length: 10 }, () => `*a${i - 1}`).join(', ')}]`);
+    const ps = problems(`${lines.join('\n')}\n`);
+    expect(ps).toHaveLength(1);
+    expect(ps[0].message).toMatch(/^YAML: .*alias/i);
+  });
+});

@@ -78,7 +78,13 @@ export function loadConfig(path: string | null, env: NodeJS.ProcessEnv, override
       const pos = w.linePos?.[0];
       ps.items.push({ path: '', message: `YAML: ${w.message.split(/ at line \d+/)[0]}`, ...(pos ? { line: pos.line, column: pos.col } : {}) });
     }
-    const js: unknown = doc.toJS({ maxAliasCount: 1000 });
+    let js: unknown;
+    try {
+      // The alias bound keeps a small file from expanding into a huge object (the "billion laughs" shape).
+      js = doc.toJS({ maxAliasCount: 1000 });
+    } catch (e) {
+      return { ok: false, problems: [{ path: '', message: `YAML: ${(e as Error).message.split(/ at line \d+/)[0]}` }] };
+    }
     if (isObj(js)) root = { ...js };
     else if (!absent(js)) {
       ps.add([], `the file must be a mapping of sections (${TOP_KEYS.join(', ')}), got ${show(js)}`);
