@@ -130,7 +130,11 @@ export const fitCommand: CommandModule<object, FitArgs> = {
       .option('format', { type: 'string', choices: ['auto', 'csv', 'ndjson'], default: 'auto', describe: 'Input format; auto goes by the file name, then by the first line' })
       .option('seed', { type: 'number', default: FIT_DEFAULTS.seed, describe: 'Seed of the k-means++ starts; the same seed gives the same fit' })
       .option('restarts', { type: 'number', default: FIT_DEFAULTS.restarts, describe: 'EM starts per k; the best likelihood wins' })
-      .option('tolerance', { type: 'number', default: FIT_DEFAULTS.tolerance, describe: 'EM stops when the mean log-likelihood per row changes by less than this' })
+      .option('tolerance', {
+        type: 'number',
+        default: FIT_DEFAULTS.tolerance,
+        describe: 'EM stops when the mean log-likelihood per row changes by less than this (candidates are compared at max(this, 1e-6), the chosen fit is refined to this)',
+      })
       .option('max-iterations', { type: 'number', default: FIT_DEFAULTS.maxIterations, describe: 'EM iteration cap per start' })
       .option('skip-invalid', {
         type: 'boolean',

@@ -20,7 +20,10 @@ export interface FitSettings {
   scale: ScaleChoice;
   seed: number;
   restarts: number;
-  /** Stop EM when the mean log-likelihood per row changes by less than this. */
+  /**
+   * Stop EM when the mean log-likelihood per row changes by less than this. Candidates are compared at
+   * max(tolerance, SCREEN_TOLERANCE); the chosen one is then refitted to `tolerance`.
+   */
   tolerance: number;
   maxIterations: number;
   skipInvalid: boolean;
@@ -32,10 +35,17 @@ export const FIT_DEFAULTS: FitSettings = {
   scale: 'auto',
   seed: 1,
   restarts: 5,
-  tolerance: 1e-6,
+  tolerance: 1e-8,
   maxIterations: 1000,
   skipInvalid: false,
 };
+
+/**
+ * Tolerance at which candidate k (and scales) are compared. EM creeps near an optimum, and over-fitted k creep
+ * longest: screening at 1e-6 and refining only the winner made `fit` on Old Faithful waiting (scale auto, k 1..5)
+ * five times faster than running every candidate to 1e-8 (1.2 s → 0.25 s), with the same chosen fit.
+ */
+export const SCREEN_TOLERANCE = 1e-6;
 
 /** Largest k accepted; more components than this is not a mixture a person reads. */
 export const K_LIMIT = 20;
@@ -176,7 +186,7 @@ function fitOneColumn(
   } else scales = [s.scale];
   const total = scales.length * (kMax - s.kMin + 1);
   let done = 0;
-  const opts = { seed: s.seed, restarts: s.restarts, tol: s.tolerance, maxIter: s.maxIterations };
+  const opts = { seed: s.seed, restarts: s.restarts, tol: Math.max(s.tolerance, SCREEN_TOLERANCE), maxIter: s.maxIterations };
   let chosen: { scale: ScaleName; best: BatchFit; candidates: Candidate[] } | null = null;
   const comparison: NonNullable<FitReport['scaleComparison']> = [];
   for (const scale of scales) {
@@ -193,6 +203,19 @@ function fitOneColumn(
     if (chosen === null || best.bic < chosen.best.bic) chosen = { scale, best, candidates };
   }
   if (chosen === null) throw new Error('unreachable: no scale');
+  if (s.tolerance < opts.tol) {
+    // Refine the winner; keep whichever of the two is the better optimum.
+    const fine = fitMixture1D(x, chosen.best.mixture.k, chosen.scale, { ...opts, tol: s.tolerance });
+    if (fine.logLikelihood >= chosen.best.logLikelihood) {
+      chosen.best = fine;
+      const c = chosen.candidates.find((cc) => cc.k === fine.mixture.k) as Candidate;
+      c.logLikelihood = fine.logLikelihood;
+      c.bic = fine.bic;
+      const sc = comparison.find((cc) => cc.scale === chosen!.scale) as (typeof comparison)[number];
+      sc.logLikelihood = fine.logLikelihood;
+      sc.bic = fine.bic;
+    }
+  }
   const m = chosen.best.mixture;
   const scale = chosen.scale;
   const order = Array.from({ length: m.k }, (_, j) => j);
@@ -245,13 +268,23 @@ function fitVector(table: DataTable, s: FitSettings, kMax: number, skipped: Skip
   const total = kMax - s.kMin + 1;
   let best: MvFitResult | null = null;
   const candidates: Candidate[] = [];
+  const opts = { restarts: s.restarts, seed: s.seed, tol: Math.max(s.tolerance, SCREEN_TOLERANCE), maxIterations: s.maxIterations };
   for (let k = s.kMin; k <= kMax; k++) {
-    const fit = fitMvMixture(data, n, d, { k, restarts: s.restarts, seed: s.seed, tol: s.tolerance, maxIterations: s.maxIterations });
+    const fit = fitMvMixture(data, n, d, { ...opts, k });
     candidates.push({ k, logLikelihood: fit.logLikelihood, bic: fit.bic });
     if (best === null || fit.bic < best.bic) best = fit;
     hooks.onFit?.(k - s.kMin + 1, total);
   }
   if (best === null) throw new Error('unreachable: empty k range');
+  if (s.tolerance < opts.tol) {
+    const fine = fitMvMixture(data, n, d, { ...opts, k: best.k, tol: s.tolerance });
+    if (fine.logLikelihood >= best.logLikelihood) {
+      best = fine;
+      const c = candidates.find((cc) => cc.k === fine.k) as Candidate;
+      c.logLikelihood = fine.logLikelihood;
+      c.bic = fine.bic;
+    }
+  }
   const m = best.mixture;
   const comps: ComponentReport[] = [];
   for (let j = 0; j < m.k; j++) {
