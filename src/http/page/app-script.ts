@@ -138,8 +138,9 @@ function sparkline(points, components) {
   var svg = sv('svg', { 'class': 'spark', width: w, height: hgt, viewBox: '0 0 ' + w + ' ' + hgt, role: 'img', 'aria-label': label });
   svg.appendChild(sv('title', { text: label }));
   svg.appendChild(sv('line', { x1: 0, x2: w, y1: hgt - 1, y2: hgt - 1, stroke: '#ddd' }));
-  var step = points.length > 1 ? w / (SPARK_POINTS - 1) : 0;
-  var x0 = w - step * (points.length - 1);
+  // Few points yet: spread them over the whole width (one point draws as a level line).
+  var step = points.length > 1 ? w / (points.length - 1) : 0;
+  var x0 = 0;
   Object.keys(ids).forEach(function (id) {
     var d = '';
     var pen = false;
@@ -150,7 +151,7 @@ function sparkline(points, components) {
       d += (pen ? 'L' : 'M') + x.toFixed(1) + ' ' + y.toFixed(1);
       pen = true;
     });
-    if (points.length === 1 && d) d += 'h3';
+    if (points.length === 1 && d) d += 'H' + w;
     if (d) svg.appendChild(sv('path', { d: d, fill: 'none', stroke: componentColour(Number(id)), 'stroke-width': 1.6 }));
   });
   return svg;
@@ -200,17 +201,18 @@ function overview(main) {
           : el('span', { 'class': 'muted', text: 'none' });
         var last = s.lastTransition
           ? [badge(s.lastTransition.state), ' ', kindWords(s.lastTransition.kind), el('div', { 'class': 'muted', text: when(s.lastTransition.ts) })]
-          : el('span', { 'class': 'muted', text: 'none yet' });
+          : el('span', { 'class': 'muted nowrap', text: 'none yet' });
         body.appendChild(el('tr', { 'data-stream': s.name }, [
           el('th', { scope: 'row' }, el('a', { href: BASE + '/streams/' + encodeURIComponent(s.name), text: s.name })),
           el('td', { 'class': 'state', text: s.state }),
           el('td', { 'class': 'num', text: s.components.length }),
-          el('td', null, sparkline(points, s.components)),
+          el('td', { 'class': 'nowrap' }, [sparkline(points, s.components),
+            el('span', { 'class': 'spark-values', text: s.components.map(function (c) { return '#' + c.id + ' ' + (100 * c.weight).toFixed(0) + '%'; }).join(' \u00B7 ') })]),
           el('td', { 'class': 'num', text: s.state === 'armed' ? s.shiftScore.toFixed(2) : '\u2013' }),
           el('td', null, alertsNow),
           el('td', null, last),
           el('td', { 'class': 'num', text: s.events.toLocaleString('en') }),
-          el('td', { 'class': 'muted', text: when(s.lastEventTs) })
+          el('td', { 'class': 'muted nowrap', text: when(s.lastEventTs) })
         ]));
       });
       count.textContent = 'Showing ' + data.streams.length + ' of ' + data.matched + ' matching (' + data.total + ' streams in all); ' +
@@ -283,7 +285,7 @@ function densityChart(d) {
 
   var label = 'Histogram of the last ' + d.histogram.total + ' values with the fitted density of the current model (solid line) and of the reference model (dashed line); ' +
     comps.length + ' current components: ' + comps.map(function (b) { return 'component ' + b.id + ' near ' + fmt(b.location); }).join(', ') + '.';
-  var svg = sv('svg', { 'class': 'chart', id: 'density-chart', viewBox: '0 0 ' + W + ' ' + H, width: W, height: H, role: 'img', 'aria-label': label });
+  var svg = sv('svg', { 'class': 'chart', id: 'density-chart', viewBox: '0 0 ' + W + ' ' + H, role: 'img', 'aria-label': label });
   svg.appendChild(sv('title', { text: label }));
 
   // histogram bars

@@ -37,7 +37,9 @@ h3 { font-size: 1rem; margin: 1rem 0 .4rem; }
 table { border-collapse: collapse; width: 100%; font-variant-numeric: tabular-nums; }
 caption { text-align: left; color: var(--muted); font-size: .85rem; padding-bottom: .3rem; }
 th, td { text-align: left; padding: .3rem .55rem; border-bottom: 1px solid var(--rule); vertical-align: middle; }
-th { font-size: .82rem; color: var(--muted); font-weight: 600; background: #fafafa; }
+thead th { font-size: .82rem; color: var(--muted); font-weight: 600; background: #fafafa; }
+tbody th { font-weight: 600; }
+td.nowrap { white-space: nowrap; }
 td.num, th.num { text-align: right; }
 tbody tr:hover { background: #fbfaf5; }
 .filter { display: flex; gap: .6rem; align-items: center; margin: .6rem 0; flex-wrap: wrap; }
@@ -49,7 +51,7 @@ tbody tr:hover { background: #fbfaf5; }
 .badge.pending { color: #6b5200; background: #fffbe6; }
 .badge.resolved { color: #00664a; background: #eefaf5; }
 .badge.quiet { color: var(--muted); }
-.chart { max-width: 100%; height: auto; display: block; }
+.chart { width: 100%; max-width: 62rem; height: auto; display: block; }
 .chart text { font-size: 11px; fill: var(--ink); font-family: inherit; }
 .chart .axis line, .chart .axis path { stroke: #444; }
 .chart .grid { stroke: #eee; }
@@ -57,7 +59,8 @@ figure { margin: .5rem 0; }
 figcaption { font-size: .85rem; color: var(--muted); margin-top: .3rem; }
 .legend { list-style: none; padding: 0; margin: .4rem 0; display: flex; flex-wrap: wrap; gap: .3rem 1.2rem; font-size: .88rem; }
 .legend li { display: flex; align-items: center; gap: .4rem; }
-.spark { display: block; }
+.spark { display: inline-block; vertical-align: middle; }
+.spark-values { font-size: .8rem; color: var(--muted); margin-left: .4rem; white-space: nowrap; font-variant-numeric: tabular-nums; }
 .timeline { list-style: none; padding: 0; margin: 0; }
 .timeline > li { border-left: 3px solid var(--rule); padding: .4rem .8rem .6rem; margin: 0 0 .6rem; }
 .timeline > li.firing { border-left-color: #D55E00; }
@@ -72,7 +75,7 @@ summary { cursor: pointer; color: var(--accent); font-size: .9rem; }
 .evidence dd { margin: 0; font-variant-numeric: tabular-nums; }
 .pair { display: grid; grid-template-columns: 1fr 1fr; gap: 1rem; }
 @media (max-width: 48rem) { .pair { grid-template-columns: 1fr; } }
-.pair table { font-size: .85rem; }
+.pair table { font-size: .85rem; align-self: start; }
 button { font: inherit; padding: .3rem .7rem; border: 1px solid #666; border-radius: 4px; background: #fff; cursor: pointer; }
 button:hover { background: var(--panel); }
 .note { font-size: .88rem; color: var(--muted); }
