@@ -1,0 +1,937 @@
+/**
+ * One vector stream's monitor (d ≤ 8, e.g. latency and payload size of the same request): the
+ * multivariate counterpart of StreamMonitor, with the same design. A slow reference model (what
+ * is normal) and a fast current model (what is happening), both full-covariance stepwise-EM
+ * mixtures (OnlineMvMixture), and detectors that compare each event with the reference, using
+ * the reference's responsibilities r_k computed once per event:
+ *  - per reference component, CUSUMs (Page 1954) of the exact mixture log-likelihood ratio for its
+ *    weight going up, down or almost to nothing: ln(1 + r_k(a − 1) + (r_G − r_k)(b − 1)), a = w'/w,
+ *    b = (1 − w')/(1 − w), r_G the share of the Gaussians (the rest is the background);
+ *  - per reference component and axis i, CUSUMs for its mean moving up or down by λ sd of that
+ *    axis (2·d per component; derivation at `locationTerms`);
+ *  - a fit CUSUM on the standardised surprise −ln p_ref(x), for changes none of the others names;
+ *  - new modes: a ring of badly explained events and a cluster-vs-reference likelihood-ratio test
+ *    (vector-novelty.ts), which gives birth to a component in the current model.
+ * The reference learns only while every statistic is below half its threshold and no alert is
+ * active; once a change has fired long enough, the reference absorbs the current model.
+ *
+ * Outliers: a fixed heavy-tailed background (a product of Cauchy densities, 8 bootstrap spreads
+ * wide per axis) with weight `outlierWeight` takes events far from every component, so a single
+ * wild event moves no CUSUM and teaches neither model (events the background explains better
+ * than the Gaussians are not learned).
+ *
+ * MonitorConfig keys for vectors: bootstrapEvents, warmupEvents, maxComponents, capacity,
+ * referenceWindow, currentWindow, outlierWeight, threshold, fitThreshold, minNewModeWeight,
+ * weightShiftAbsolute, weightShiftRelative, locationShiftSds (λ, per axis in that axis' sd),
+ * vanishFraction, confirmEvents, absorbAfterEvents, absorbAfterMs and seed apply as for scalars;
+ * currentWindow is also the window W of the new-mode test. Not applicable: scale (vectors are
+ * modelled in their own units), unit (read-outs are in stream units), referenceHalfLifeMs and
+ * currentHalfLifeMs (OnlineMvMixture forgets by event count only), known (no declared vector
+ * components): they are ignored.
+ *
+ * Processing depends on the events and their timestamps only (housekeeping every 256 accepted
+ * events, counted), so a replay and a resume from exportState give the same models and alerts.
+ * After the first event fixes the dimension, the per-event path allocates nothing.
+ */
+import { MV_MAX_DIM, MvMixture, OnlineMvMixture, mvToJSON, onlineMvFromJSON, selectMvMixture, type OnlineMvDocument } from '../math/mv/index.js';
+import type { AlertEvidence, AlertKind, ComponentView } from './alert.js';
+import { AlertBook, type ActiveAlert, type TransitionListener } from './alert-book.js';
+import { CusumBank } from './cusum-bank.js';
+import type { MonitorConfig } from './monitor-config.js';
+import { bhattacharyya, mahalanobis2, withComponent, withMerged, withSettings, withoutComponent } from './vector-model-edit.js';
+import { VectorNovelty, type VectorCandidate, type VectorNoveltyState } from './vector-novelty.js';
+
+/** Statistics per reference component: weight up, down, vanish, then up/down per axis. */
+const W_UP = 0;
+const W_DOWN = 1;
+const VANISH = 2;
+const LOC = 3;
+const PER_COMPONENT = LOC + 2 * MV_MAX_DIM;
+
+/** Per component: a and b of the three weight alternatives, and ln b (the ratio for plainly-other events). */
+const C_UP_A = 0;
+const C_UP_B = 1;
+const C_DN_A = 2;
+const C_DN_B = 3;
+const C_VA_A = 4;
+const C_VA_B = 5;
+const C_UP_LB = 6;
+const C_DN_LB = 7;
+const C_VA_LB = 8;
+const CONSTS = 9;
+
+const SOURCE_FIT = -1;
+const SOURCE_BORN = -2;
+
+const HOUSEKEEPING_EVERY = 256;
+const FIT_SLACK = 0.5;
+const FIT_CLIP = 3;
+/** An event is "badly explained" when its surprise exceeds the quiet mean by this many sds (or the background takes it). */
+const TAG_SDS = 4;
+/** Surprise observations needed before the surprise tag is trusted. */
+const TAG_MIN_COUNT = 256;
+
+export type VectorMonitorPhase = 'bootstrap' | 'warmup' | 'armed';
+
+/** A component with its full mean vector and per-axis sds, stream units. */
+export interface VectorComponentView {
+  id: number;
+  weight: number;
+  mean: number[];
+  sd: number[];
+}
+
+export class VectorStreamMonitor {
+  readonly stream: string;
+  readonly config: MonitorConfig;
+  private phase: VectorMonitorPhase = 'bootstrap';
+  private d = 0;
+  private boot: Float64Array | null = null;
+  private bootCount = 0;
+  private ref: OnlineMvMixture | null = null;
+  private cur: OnlineMvMixture | null = null;
+  private readonly refIds: Int32Array;
+  private readonly curIds: Int32Array;
+  private nextId = 1;
+  private readonly shifts: CusumBank;
+  private readonly owned: Uint8Array;
+  private readonly fit = new CusumBank(1);
+  private novelty: VectorNovelty | null = null;
+  private readonly consts: Float64Array;
+  /** Per component and axis: √C_ii and the location penalty λ²·C_ii·(C⁻¹)_ii/2 (working frame). */
+  private readonly locSd: Float64Array;
+  private readonly locPen: Float64Array;
+  /** Per axis: the smallest reference sd (unit of the new-mode test). */
+  private unit = new Float64Array(0);
+  /** Background: Cauchy centre and scale per axis, and Σ −ln(π s_i). */
+  private bgCenter = new Float64Array(0);
+  private bgScale = new Float64Array(0);
+  private bgConst = 0;
+  private surpriseMean = 0;
+  private surpriseVar = 1;
+  private surpriseCount = 0;
+  private accepted = 0;
+  private lastTs = 0;
+  private lastOffset = -1;
+  private readonly book: AlertBook;
+  private pendingCount = 0;
+  // scratch (sized at the first event)
+  private xv = new Float64Array(0);
+  private resp = new Float64Array(0);
+  private z = new Float64Array(0);
+  private work = new Float64Array(0);
+  private u = new Float64Array(0);
+
+  constructor(stream: string, config: MonitorConfig, listener: TransitionListener) {
+    this.stream = stream;
+    this.config = config;
+    this.refIds = new Int32Array(config.capacity);
+    this.curIds = new Int32Array(config.capacity);
+    this.shifts = new CusumBank(config.capacity * PER_COMPONENT);
+    this.owned = new Uint8Array(config.capacity * PER_COMPONENT);
+    this.consts = new Float64Array(config.capacity * CONSTS);
+    this.locSd = new Float64Array(config.capacity * MV_MAX_DIM);
+    this.locPen = new Float64Array(config.capacity * MV_MAX_DIM);
+    this.book = new AlertBook(stream, listener);
+  }
+
+  /** Dimension fixed by the first event (0 before it). */
+  get dimension(): number {
+    return this.d;
+  }
+  get state(): VectorMonitorPhase {
+    return this.phase;
+  }
+  get eventsAccepted(): number {
+    return this.accepted;
+  }
+  get lastEventTs(): number {
+    return this.lastTs;
+  }
+  /** The reference mixture (parameters of its latest M-step), or null before bootstrap. */
+  get reference(): MvMixture | null {
+    return this.ref === null ? null : this.ref.mixture;
+  }
+  get current(): MvMixture | null {
+    return this.cur === null ? null : this.cur.mixture;
+  }
+  alerts(): ActiveAlert[] {
+    return this.book.list();
+  }
+
+  /** Largest statistic over its threshold (>= 1 means some detector is over threshold). */
+  shiftScore(): number {
+    if (this.phase !== 'armed') return 0;
+    const h = this.config.threshold;
+    return Math.max(this.shifts.max() / h, (this.novelty?.statistic ?? 0) / h, this.fit.value(0) / this.config.fitThreshold);
+  }
+
+  /**
+   * Feed one vector x[0..dim) (stream units) at event time ts (ms) from input position offset.
+   * The first event fixes the dimension; later events of another dimension are rejected.
+   */
+  observeVector(x: Float64Array, dim: number, ts: number, offset: number): 'not_finite' | 'wrong_dimension' | null {
+    if (!Number.isInteger(dim) || dim < 1 || dim > MV_MAX_DIM || dim > x.length) return 'wrong_dimension';
+    if (this.d === 0) this.setDimension(dim);
+    else if (dim !== this.d) return 'wrong_dimension';
+    const d = this.d;
+    for (let i = 0; i < d; i++) if (!Number.isFinite(x[i])) return 'not_finite';
+    this.accepted++;
+    this.lastTs = ts;
+    this.lastOffset = offset;
+    if (this.phase === 'bootstrap') {
+      const boot = this.boot as Float64Array;
+      for (let i = 0; i < d; i++) boot[this.bootCount * d + i] = x[i];
+      this.bootCount++;
+      if (this.bootCount === this.config.bootstrapEvents) this.bootstrap();
+      return null;
+    }
+    const xv = this.xv;
+    for (let i = 0; i < d; i++) xv[i] = x[i];
+    const ref = this.ref as OnlineMvMixture;
+
+    // Reference responsibilities once per event, with the background.
+    const eps = this.config.outlierWeight;
+    const logG = ref.mixture.responsibilities(xv, this.resp);
+    let logP = logG;
+    let rG = 1;
+    if (eps > 0) {
+      const a = Math.log1p(-eps) + logG;
+      const b = Math.log(eps) + this.bgLogPdf(xv);
+      logP = a > b ? a + Math.log1p(Math.exp(b - a)) : b + Math.log1p(Math.exp(a - b));
+      rG = Math.exp(a - logP);
+    }
+    const surprise = -logP;
+
+    let quiet = true;
+    if (this.phase === 'armed') quiet = this.detect(ref, rG, surprise, ts, offset);
+    else if (this.accepted >= this.config.warmupEvents) this.arm();
+    else this.learnStructure(rG, surprise, ts, offset);
+
+    if (quiet && rG > 0.5) (this.ref as OnlineMvMixture).update(xv);
+    if (quiet) this.learnSurprise(surprise);
+    const cur = this.cur as OnlineMvMixture; // a birth may have replaced it
+    if (this.explainedByGaussians(cur, xv)) cur.update(xv);
+    if (this.accepted % HOUSEKEEPING_EVERY === 0) this.housekeeping(ts, offset, quiet);
+    return null;
+  }
+
+  /** Declare the current state normal: the reference takes the current model and every alert resolves. */
+  rebaseline(): void {
+    if (this.phase === 'bootstrap') return;
+    this.absorb(this.lastTs, this.lastOffset, 'rebaselined');
+  }
+
+  // ---- detection (per event) ----
+
+  private detect(ref: OnlineMvMixture, rG: number, surprise: number, ts: number, offset: number): boolean {
+    const cfg = this.config;
+    const h = cfg.threshold;
+    const k = ref.k;
+    const d = this.d;
+    const cs = this.consts;
+    const resp = this.resp;
+    let maxStat = 0;
+    ref.mixture.toFrame(this.xv, this.z);
+    for (let j = 0; j < k; j++) {
+      const r = rG * resp[j];
+      const c = j * CONSTS;
+      const base = j * PER_COMPONENT;
+      const rOther = rG - r;
+      this.locationTerms(ref.mixture, j);
+      const u = this.u;
+      let far = false;
+      for (let i = 0; i < d; i++) if (u[i] >= 13 || u[i] <= -13) far = true;
+      if (r < 1e-12 && rG > 1 - 1e-9 && !far) {
+        // The event is plainly another component's: each weight ratio is its constant for "not this one"
+        // (within 1e-9) and each location ratio is 1 (r·e^|λz| < 1e-6). Most events take this path.
+        maxStat = Math.max(
+          maxStat,
+          this.step(base + W_UP, cs[c + C_UP_LB], offset, ts),
+          this.step(base + W_DOWN, cs[c + C_DN_LB], offset, ts),
+          this.step(base + VANISH, cs[c + C_VA_LB], offset, ts),
+        );
+        for (let i = 0; i < 2 * d; i++) maxStat = Math.max(maxStat, this.step(base + LOC + i, 0, offset, ts));
+        continue;
+      }
+      maxStat = Math.max(
+        maxStat,
+        this.step(base + W_UP, Math.log(1 + r * (cs[c + C_UP_A] - 1) + rOther * (cs[c + C_UP_B] - 1)), offset, ts),
+        this.step(base + W_DOWN, Math.log(1 + r * (cs[c + C_DN_A] - 1) + rOther * (cs[c + C_DN_B] - 1)), offset, ts),
+        this.step(base + VANISH, Math.log(1 + r * (cs[c + C_VA_A] - 1) + rOther * (cs[c + C_VA_B] - 1)), offset, ts),
+      );
+      for (let i = 0; i < d; i++) {
+        let lz = u[i];
+        if (lz > 50) lz = 50;
+        else if (lz < -50) lz = -50;
+        const pen = this.locPen[j * MV_MAX_DIM + i];
+        maxStat = Math.max(
+          maxStat,
+          this.step(base + LOC + 2 * i, Math.log(1 + r * (Math.exp(lz - pen) - 1)), offset, ts),
+          this.step(base + LOC + 2 * i + 1, Math.log(1 + r * (Math.exp(-lz - pen) - 1)), offset, ts),
+        );
+      }
+    }
+    // Fit: standardised surprise, clipped so one wild event cannot decide alone.
+    let zf = (surprise - this.surpriseMean) / Math.sqrt(this.surpriseVar);
+    if (zf > FIT_CLIP) zf = FIT_CLIP;
+    else if (zf < -FIT_CLIP) zf = -FIT_CLIP;
+    const fitStat = this.fit.step(0, zf - FIT_SLACK, offset, ts);
+    if (fitStat >= cfg.fitThreshold && this.book.get(this.book.key('poor_fit', null)) === undefined) this.openFit(ts);
+
+    const cand = this.tagAndSearch(rG, surprise, ts, offset);
+    if (cand !== null && cand.statistic >= h) this.onNovelty(cand, ts);
+
+    if (this.pendingCount > 0) this.confirmPending(ts, offset);
+    return maxStat < 0.5 * h && fitStat < 0.5 * cfg.fitThreshold && this.book.size === 0;
+  }
+
+  /**
+   * Location terms of component j for the event in this.z (working frame), into this.u[i] = λ·(Σ⁻¹(x−μ))_i·σ_i.
+   *
+   * Derivation. For one Gaussian, a mean shift δ changes the log density by
+   *   ln N(x; μ+δ, Σ) − ln N(x; μ, Σ) = −½(x−μ−δ)ᵀΣ⁻¹(x−μ−δ) + ½(x−μ)ᵀΣ⁻¹(x−μ) = δᵀΣ⁻¹(x−μ) − ½ δᵀΣ⁻¹δ.
+   * With δ = ±λ σ_i e_i (λ sd of axis i, σ_i² = Σ_ii):
+   *   ln f'_k/f_k = ±λ σ_i (Σ⁻¹(x−μ))_i − ½ λ² σ_i² (Σ⁻¹)_ii.
+   * The mixture changes in component k only, so p'(x)/p(x) = 1 + r_k (f'_k/f_k − 1) with r_k the
+   * responsibility of k under the reference (background included): the CUSUM adds its log. The expected
+   * llr under no change is ≤ 0; KL per event of component k is ½λ²σ_i²(Σ⁻¹)_ii ≥ ½λ² (correlation raises it).
+   * In the frame z = D⁻¹(x − c) (D = diag(scale)), Σ = D C D, so Σ⁻¹(x−μ) = D⁻¹C⁻¹(z−m) and
+   * σ_i (Σ⁻¹(x−μ))_i = √C_ii (C⁻¹(z−m))_i, σ_i²(Σ⁻¹)_ii = C_ii (C⁻¹)_ii: the scale cancels. C⁻¹(z−m) costs
+   * a forward and a back substitution with the cached Cholesky factor L (C = L Lᵀ).
+   */
+  private locationTerms(m: MvMixture, j: number): void {
+    const d = this.d;
+    const L = m.frameChol;
+    const inv = m.frameInvDiag;
+    const lo = j * d * d;
+    const mo = j * d;
+    const y = this.work;
+    const u = this.u;
+    for (let i = 0; i < d; i++) {
+      let s = this.z[i] - m.frameMeans[mo + i];
+      for (let q = 0; q < i; q++) s -= L[lo + i * d + q] * y[q];
+      y[i] = s * inv[mo + i];
+    }
+    for (let i = d - 1; i >= 0; i--) {
+      let s = y[i];
+      for (let q = i + 1; q < d; q++) s -= L[lo + q * d + i] * u[q];
+      u[i] = s * inv[mo + i];
+    }
+    const lambda = this.config.locationShiftSds;
+    for (let i = 0; i < d; i++) u[i] = lambda * u[i] * this.locSd[j * MV_MAX_DIM + i];
+  }
+
+  /** One CUSUM step; opens an alert on a crossing, resolves or caps one that is active. */
+  private step(i: number, llr: number, offset: number, ts: number): number {
+    const h = this.config.threshold;
+    const s = this.shifts.step(i, llr, offset, ts);
+    const o = this.owned[i];
+    if (o !== 0) {
+      // 1: an alert owns it; 2: it crossed while suppressed. Either way it is capped so it can come back down.
+      if (s < 0.25 * h) {
+        if (o === 1) this.resolveOwned(i, ts, offset);
+        else this.owned[i] = 0;
+      } else this.shifts.cap(i, 2 * h);
+    } else if (s >= h) this.openShift(i, ts);
+    return s;
+  }
+
+  /** Keep a badly explained event and, if enough recent ones are kept, look for a cluster. */
+  private tagAndSearch(rG: number, surprise: number, ts: number, offset: number): VectorCandidate | null {
+    const tagged = rG < 0.5 || (this.surpriseCount >= TAG_MIN_COUNT && surprise > this.surpriseMean + TAG_SDS * Math.sqrt(this.surpriseVar));
+    if (!tagged) return null;
+    const nov = this.novelty as VectorNovelty;
+    nov.push(this.xv, surprise, this.accepted, ts, offset);
+    return nov.search(this.accepted, this.config.currentWindow, this.minCount(), this.unit);
+  }
+
+  private minCount(): number {
+    return Math.max(8, 2 * this.d + 2);
+  }
+
+  // ---- alerts (rare: allocation is fine here) ----
+
+  private openShift(i: number, ts: number): void {
+    const j = Math.floor(i / PER_COMPONENT);
+    const type = i % PER_COMPONENT;
+    const kind = statKind(type);
+    const id = this.refIds[j];
+    // Suppressed: another statistic already owns the alert, or the stream has an active alert and further
+    // shifts are mostly its consequences (the reference is frozen against a changed stream); only a
+    // vanishing mode is still worth an alert of its own.
+    if (this.book.get(this.book.key(kind, id)) !== undefined || (type !== VANISH && this.book.size > 0)) {
+      this.owned[i] = 2;
+      return;
+    }
+    // A vanishing component also shows as a weight decrease: the more specific alert wins.
+    if (type === VANISH) {
+      const ws = this.book.get(this.book.key('weight_shift', id));
+      if (ws !== undefined && ws.state === 'pending') {
+        this.owned[ws.source] = 0;
+        this.pendingCount--;
+        this.book.cancel(ws);
+      }
+    }
+    this.owned[i] = 1;
+    this.pendingCount++;
+    this.book.open(kind, id, i, this.accepted, ts, this.shiftEvidence(i));
+  }
+
+  private openFit(ts: number): void {
+    if (this.book.size > 0) return; // another alert already explains the misfit
+    this.pendingCount++;
+    this.book.open('poor_fit', null, SOURCE_FIT, this.accepted, ts, this.fitEvidence());
+  }
+
+  private onNovelty(cand: VectorCandidate, ts: number): void {
+    const ref = this.ref as OnlineMvMixture;
+    const nov = this.novelty as VectorNovelty;
+    const busy = this.book.size > 0;
+    // Not new if a component born earlier already sits there (a mode in the making); while the stream has
+    // an active alert the reference is frozen against a changed stream, so a candidate must also be
+    // unexplained by the current model.
+    let cur = this.cur as OnlineMvMixture;
+    for (let j = 0; j < cur.k; j++) {
+      const near = mahalanobis2(cur.mixture, j, cand.mean);
+      const radius = busy ? 3 : indexOf(this.refIds, ref.k, this.curIds[j]) < 0 ? 2 : 0;
+      if (near < radius * radius) return nov.consumeMembers();
+    }
+    for (let j = 0; j < ref.k; j++) {
+      const near = mahalanobis2(ref.mixture, j, cand.mean);
+      // A component whose location is shifting leaves a cluster of its events just beside it: that is its shift.
+      const shifting = this.book.list().some((a) => a.kind === 'location_shift' && a.componentId === this.refIds[j]);
+      if (shifting && near < 16) return nov.consumeMembers();
+      // Inside a reference component it is that component gaining weight, which the weight CUSUMs judge.
+      // A reference component the current model had lost comes back under its own id, without an alert.
+      if (near < 1.5 * 1.5) {
+        if (indexOf(this.curIds, cur.k, this.refIds[j]) < 0 && cur.k < this.config.capacity) {
+          this.cur = withComponent(cur, ref.mixture.meanOf(j), ref.mixture.covarianceOf(j), Math.max(cand.weight, this.config.minNewModeWeight));
+          this.curIds[cur.k] = this.refIds[j];
+        }
+        return nov.consumeMembers();
+      }
+    }
+    if (cur.k >= this.config.capacity) return nov.consumeMembers();
+    const id = this.nextId++;
+    cur = withComponent(cur, cand.mean, cand.cov, Math.max(cand.weight, this.config.minNewModeWeight));
+    this.curIds[cur.k - 1] = id;
+    this.cur = cur;
+    const a = this.book.open('mode_emerged', id, SOURCE_BORN, this.accepted, ts, this.emergedEvidence(id, cand.statistic));
+    a.evidence.firstEvidenceOffset = cand.firstOffset;
+    a.evidence.firstEvidenceTs = cand.firstTs;
+    a.startsAt = cand.firstTs;
+    this.pendingCount++;
+    nov.consumeMembers();
+  }
+
+  private confirmPending(ts: number, offset: number): void {
+    const h = this.config.threshold;
+    for (const a of this.book.list()) {
+      if (a.state !== 'pending' || this.accepted - a.pendingAt < this.config.confirmEvents) continue;
+      this.pendingCount--;
+      if (a.source >= 0) {
+        if (this.shifts.value(a.source) >= h) this.book.fire(a, this.accepted, ts, offset, this.shiftEvidence(a.source, a.evidence));
+        else {
+          this.owned[a.source] = 0;
+          this.book.cancel(a);
+        }
+      } else if (a.source === SOURCE_FIT) {
+        if (this.fit.value(0) >= this.config.fitThreshold) this.book.fire(a, this.accepted, ts, offset, this.fitEvidence(a.evidence));
+        else this.book.cancel(a);
+      } else {
+        const cur = this.cur as OnlineMvMixture;
+        const j = indexOf(this.curIds, cur.k, a.componentId ?? -1);
+        if (j >= 0 && cur.mixture.weights[j] >= 0.5 * this.config.minNewModeWeight) {
+          this.book.fire(a, this.accepted, ts, offset, this.emergedEvidence(a.componentId ?? -1, a.evidence.value, a.evidence));
+        } else {
+          if (j >= 0 && cur.k > 1) this.removeCurrent(j);
+          this.book.cancel(a);
+        }
+      }
+    }
+  }
+
+  private resolveOwned(i: number, ts: number, offset: number): void {
+    this.owned[i] = 0;
+    for (const a of this.book.list()) {
+      if (a.source !== i) continue;
+      if (a.state === 'pending') {
+        this.pendingCount--;
+        this.book.cancel(a);
+      } else this.book.resolve(a, ts, offset, 'recovered', this.shiftEvidence(i, a.evidence));
+    }
+  }
+
+  // ---- read-outs and evidence ----
+
+  /**
+   * Components of the reference or current mixture (as returned by `reference`/`current`) as an
+   * operator reads them: location, spread and mean of the FIRST axis, so dashboards stay uniform
+   * with scalar streams. Sorted by location. A mixture that is neither gets ids 1..k.
+   */
+  views(model: MvMixture | null): ComponentView[] {
+    if (model === null) return [];
+    const ids = this.idsOf(model);
+    const out: ComponentView[] = [];
+    for (let j = 0; j < model.k; j++) {
+      const loc = model.center[0] + model.frameMeans[j * model.d] * model.scale[0];
+      out.push({ id: ids === null ? j + 1 : ids[j], weight: model.weights[j], location: loc, spread: model.sdOf(j, 0), mean: loc });
+    }
+    return out.sort((a, b) => a.location - b.location);
+  }
+
+  /** Full mean vectors and per-axis sds (stream units), in the same order as `views`. */
+  vectorViews(model: MvMixture | null): VectorComponentView[] {
+    if (model === null) return [];
+    const ids = this.idsOf(model);
+    const out: VectorComponentView[] = [];
+    for (let j = 0; j < model.k; j++) {
+      const sd: number[] = [];
+      for (let i = 0; i < model.d; i++) sd.push(model.sdOf(j, i));
+      out.push({ id: ids === null ? j + 1 : ids[j], weight: model.weights[j], mean: Array.from(model.meanOf(j)), sd });
+    }
+    return out.sort((a, b) => a.mean[0] - b.mean[0]);
+  }
+
+  private idsOf(model: MvMixture): Int32Array | null {
+    if (this.ref !== null && model === this.ref.mixture) return this.refIds;
+    if (this.cur !== null && model === this.cur.mixture) return this.curIds;
+    return null;
+  }
+
+  private baseEvidence(statistic: string, value: number, threshold: number, componentId: number | null, firstTs: number, firstOffset: number, summary: string): AlertEvidence {
+    return {
+      statistic,
+      value,
+      threshold,
+      componentId,
+      before: this.views(this.reference),
+      after: this.views(this.current),
+      firstEvidenceTs: firstTs,
+      firstEvidenceOffset: firstOffset,
+      summary,
+    };
+  }
+
+  private shiftEvidence(i: number, prev?: AlertEvidence): AlertEvidence {
+    const ref = this.ref as OnlineMvMixture;
+    const cur = this.cur as OnlineMvMixture;
+    const j = Math.floor(i / PER_COMPONENT);
+    const type = i % PER_COMPONENT;
+    const id = this.refIds[j];
+    const w = ref.mixture.weights[j];
+    const cj = indexOf(this.curIds, cur.k, id);
+    const wAfter = cj >= 0 ? cur.mixture.weights[cj] : null;
+    const loc = vec(ref.mixture.meanOf(j));
+    let summary: string;
+    if (type === VANISH) summary = `the mode near ${loc} (weight ${pct(w)}) is vanishing${wAfter !== null ? `: now ${pct(wAfter)}` : ''}`;
+    else if (type === W_UP || type === W_DOWN) {
+      summary = `the mode near ${loc} ${type === W_UP ? 'gains' : 'loses'} weight: ${pct(w)} -> ${wAfter !== null ? pct(wAfter) : 'gone'}`;
+    } else {
+      const axis = (type - LOC) >> 1;
+      const up = (type - LOC) % 2 === 0;
+      summary = `the mode near ${loc} moves ${up ? 'up' : 'down'} along axis ${axis}${cj >= 0 ? `: now near ${vec(cur.mixture.meanOf(cj))}` : ''}`;
+    }
+    return this.baseEvidence(
+      statName(type),
+      this.shifts.value(i),
+      this.config.threshold,
+      id,
+      prev ? prev.firstEvidenceTs : this.shifts.startTs(i),
+      prev ? prev.firstEvidenceOffset : this.shifts.startOffset(i),
+      summary,
+    );
+  }
+
+  private fitEvidence(prev?: AlertEvidence): AlertEvidence {
+    return this.baseEvidence(
+      'cusum_surprise',
+      this.fit.value(0),
+      this.config.fitThreshold,
+      null,
+      prev ? prev.firstEvidenceTs : this.fit.startTs(0),
+      prev ? prev.firstEvidenceOffset : this.fit.startOffset(0),
+      'events are less likely under the reference than usual, and no single component change explains it',
+    );
+  }
+
+  private emergedEvidence(id: number, statistic: number, prev?: AlertEvidence): AlertEvidence {
+    const cur = this.cur as OnlineMvMixture;
+    const j = indexOf(this.curIds, cur.k, id);
+    const summary = j >= 0 ? `a new mode near ${vec(cur.mixture.meanOf(j))} carries ${pct(cur.mixture.weights[j])} of events` : 'a new mode appeared';
+    return this.baseEvidence('novelty_cluster_llr', statistic, this.config.threshold, id, prev ? prev.firstEvidenceTs : this.lastTs, prev ? prev.firstEvidenceOffset : this.lastOffset, summary);
+  }
+
+  // ---- lifecycle ----
+
+  private setDimension(d: number): void {
+    this.d = d;
+    this.boot = new Float64Array(this.config.bootstrapEvents * d);
+    this.xv = new Float64Array(d);
+    this.z = new Float64Array(d);
+    this.work = new Float64Array(d);
+    this.u = new Float64Array(d);
+    this.resp = new Float64Array(this.config.capacity);
+    this.unit = new Float64Array(d);
+    this.bgCenter = new Float64Array(d);
+    this.bgScale = new Float64Array(d);
+    this.novelty = new VectorNovelty(d);
+  }
+
+  private bootstrap(): void {
+    const cfg = this.config;
+    const d = this.d;
+    const n = this.bootCount;
+    const data = this.boot as Float64Array;
+    const best = selectMvMixture(data, n, d, { kMin: 1, kMax: cfg.maxComponents, seed: cfg.seed, restarts: 3, tol: 1e-4 }).best.mixture;
+    this.boot = null;
+    // A bootstrap component holding fewer than half the smallest new mode of interest sits on a handful of
+    // outliers (BIC can afford one when they are far out): the background is their model, so it goes.
+    let fit = best;
+    for (let j = fit.k - 1; j >= 0 && fit.k > 1; j--) if (fit.weights[j] < 0.5 * cfg.minNewModeWeight) fit = dropComponent(fit, j);
+    this.ref = OnlineMvMixture.fromMixture(fit, { alpha: 1, window: cfg.referenceWindow, initialCount: n });
+    this.cur = OnlineMvMixture.fromMixture(fit, { alpha: 1, window: cfg.currentWindow, initialCount: n });
+    for (let j = 0; j < fit.k; j++) {
+      this.refIds[j] = this.nextId;
+      this.curIds[j] = this.nextId++;
+    }
+    // Background: centred between the components, eight spreads wide per axis (as the scalar models' background).
+    let c = 0;
+    for (let i = 0; i < d; i++) {
+      let lo = Infinity;
+      let hi = -Infinity;
+      let maxSd = 0;
+      for (let j = 0; j < fit.k; j++) {
+        const m = fit.center[i] + fit.frameMeans[j * d + i] * fit.scale[i];
+        lo = Math.min(lo, m);
+        hi = Math.max(hi, m);
+        maxSd = Math.max(maxSd, fit.sdOf(j, i));
+      }
+      this.bgCenter[i] = 0.5 * (lo + hi);
+      const s = 8 * Math.max(0.5 * (hi - lo), maxSd);
+      this.bgScale[i] = s > 0 && Number.isFinite(s) ? s : 1;
+      c -= Math.log(Math.PI * this.bgScale[i]);
+    }
+    this.bgConst = c;
+    this.phase = 'warmup';
+    this.resetDetectors();
+    if (this.accepted >= cfg.warmupEvents) this.arm();
+  }
+
+  /**
+   * During warm-up, a cluster the bootstrap fit explains badly (a mode too small for the first batch)
+   * gets a component in both models, silently: it is part of what is normal.
+   */
+  private learnStructure(rG: number, surprise: number, ts: number, offset: number): void {
+    const cand = this.tagAndSearch(rG, surprise, ts, offset);
+    if (cand === null || cand.statistic < this.config.threshold) return;
+    const nov = this.novelty as VectorNovelty;
+    const ref = this.ref as OnlineMvMixture;
+    const cur = this.cur as OnlineMvMixture;
+    for (let j = 0; j < ref.k; j++) if (mahalanobis2(ref.mixture, j, cand.mean) < 4) return nov.consumeMembers();
+    if (ref.k >= this.config.capacity || cur.k >= this.config.capacity) return nov.consumeMembers();
+    const w = Math.max(cand.weight, this.config.minNewModeWeight);
+    const id = this.nextId++;
+    this.ref = withComponent(ref, cand.mean, cand.cov, w);
+    this.refIds[ref.k] = id;
+    this.cur = withComponent(cur, cand.mean, cand.cov, w);
+    this.curIds[cur.k] = id;
+    nov.consumeMembers();
+    this.computeConsts();
+  }
+
+  private arm(): void {
+    this.phase = 'armed';
+    this.resetDetectors();
+  }
+
+  private resetDetectors(): void {
+    this.shifts.resetAll();
+    this.owned.fill(0);
+    this.fit.resetAll();
+    (this.novelty as VectorNovelty).clear(this.accepted);
+    this.computeConsts();
+  }
+
+  private computeConsts(): void {
+    const ref = this.ref as OnlineMvMixture;
+    const cfg = this.config;
+    const m = ref.mixture;
+    const d = this.d;
+    const lambda = cfg.locationShiftSds;
+    this.unit.fill(Infinity);
+    for (let j = 0; j < ref.k; j++) {
+      const w = Math.min(Math.max(m.weights[j], 1e-9), 1 - 1e-9);
+      const delta = Math.max(cfg.weightShiftAbsolute, cfg.weightShiftRelative * Math.min(w, 1 - w));
+      const up = Math.min(w + delta, 0.5 * (w + 1));
+      const down = Math.max(w - delta, 0.5 * w);
+      const van = w * cfg.vanishFraction;
+      const c = j * CONSTS;
+      this.consts[c + C_UP_A] = up / w;
+      this.consts[c + C_UP_B] = (1 - up) / (1 - w);
+      this.consts[c + C_DN_A] = down / w;
+      this.consts[c + C_DN_B] = (1 - down) / (1 - w);
+      this.consts[c + C_VA_A] = van / w;
+      this.consts[c + C_VA_B] = (1 - van) / (1 - w);
+      this.consts[c + C_UP_LB] = Math.log(this.consts[c + C_UP_B]);
+      this.consts[c + C_DN_LB] = Math.log(this.consts[c + C_DN_B]);
+      this.consts[c + C_VA_LB] = Math.log(this.consts[c + C_VA_B]);
+      // Location: √C_ii and ½λ²C_ii(C⁻¹)_ii, with (C⁻¹)_ii = |L⁻¹e_i|² by forward substitution.
+      const lo = j * d * d;
+      const L = m.frameChol;
+      const y = this.work;
+      for (let i = 0; i < d; i++) {
+        let q = 0;
+        for (let r = 0; r < d; r++) {
+          let s = r === i ? 1 : 0;
+          for (let t = 0; t < r; t++) s -= L[lo + r * d + t] * y[t];
+          y[r] = s * m.frameInvDiag[j * d + r];
+          q += y[r] * y[r];
+        }
+        const cii = m.frameCovariances[lo + i * d + i];
+        this.locSd[j * MV_MAX_DIM + i] = Math.sqrt(cii);
+        this.locPen[j * MV_MAX_DIM + i] = 0.5 * lambda * lambda * cii * q;
+        this.unit[i] = Math.min(this.unit[i], m.sdOf(j, i));
+      }
+    }
+    for (let i = 0; i < d; i++) if (!(this.unit[i] > 0) || !Number.isFinite(this.unit[i])) this.unit[i] = 1;
+  }
+
+  private bgLogPdf(x: Float64Array): number {
+    let s = this.bgConst;
+    for (let i = 0; i < this.d; i++) {
+      const t = (x[i] - this.bgCenter[i]) / this.bgScale[i];
+      s -= Math.log1p(t * t);
+    }
+    return s;
+  }
+
+  /** Whether the Gaussians of `model` explain x better than the background (only then does it learn from x). */
+  private explainedByGaussians(model: OnlineMvMixture, x: Float64Array): boolean {
+    const eps = this.config.outlierWeight;
+    if (eps === 0) return true;
+    return Math.log1p(-eps) + model.mixture.logpdf(x) > Math.log(eps) + this.bgLogPdf(x);
+  }
+
+  /** Running mean and variance of the surprise under the reference, learned while quiet. */
+  private learnSurprise(s: number): void {
+    if (!Number.isFinite(s)) return;
+    this.surpriseCount++;
+    const g = Math.max(1 / this.surpriseCount, 1 / this.config.referenceWindow);
+    const dv = s - this.surpriseMean;
+    this.surpriseMean += g * dv;
+    this.surpriseVar = Math.max((1 - g) * (this.surpriseVar + g * dv * dv), 1e-6);
+  }
+
+  private removeCurrent(j: number): void {
+    const cur = this.cur as OnlineMvMixture;
+    this.cur = withoutComponent(cur, j);
+    this.curIds.copyWithin(j, j + 1, cur.k);
+  }
+
+  private housekeeping(ts: number, offset: number, quiet: boolean): void {
+    const cfg = this.config;
+    // Prune components of the current model whose weight is negligible (a reference component keeps its id for a return).
+    const pruneBelow = Math.min(0.002, cfg.minNewModeWeight / 5);
+    for (let j = (this.cur as OnlineMvMixture).k - 1; j >= 0 && (this.cur as OnlineMvMixture).k > 1; j--) {
+      if ((this.cur as OnlineMvMixture).mixture.weights[j] < pruneBelow) {
+        const id = this.curIds[j];
+        this.removeCurrent(j);
+        const a = this.book.get(this.book.key('mode_emerged', id));
+        if (a !== undefined) {
+          if (a.state === 'pending') this.pendingCount--;
+          this.book.resolve(a, ts, offset, 'recovered', this.emergedEvidence(id, 0, a.evidence));
+        }
+      }
+    }
+    // Merge components of the current model that have come to overlap (one merge per pass).
+    const cur = this.cur as OnlineMvMixture;
+    merge: for (let a = 0; a < cur.k; a++) {
+      for (let b = a + 1; b < cur.k; b++) {
+        if (bhattacharyya(cur.mixture, a, b) < 0.02) {
+          const keepA = this.curIds[a] < this.curIds[b];
+          const id = keepA ? this.curIds[a] : this.curIds[b];
+          this.cur = withMerged(cur, a, b);
+          this.curIds.copyWithin(b, b + 1, cur.k);
+          this.curIds[a] = id;
+          break merge;
+        }
+      }
+    }
+    if (this.phase !== 'armed') return;
+    if (quiet) this.computeConsts();
+    // Absorb a change that has been firing long enough: it is the new normal.
+    for (const a of this.book.list()) {
+      if (a.state !== 'firing') continue;
+      const long = this.accepted - a.firingAt >= cfg.absorbAfterEvents || (cfg.absorbAfterMs > 0 && ts - a.firingTs >= cfg.absorbAfterMs);
+      if (long) {
+        this.absorb(ts, offset, 'absorbed');
+        break;
+      }
+    }
+  }
+
+  private absorb(ts: number, offset: number, resolution: 'absorbed' | 'rebaselined'): void {
+    const cur = this.cur as OnlineMvMixture;
+    const ref = this.ref as OnlineMvMixture;
+    this.ref = withSettings(cur, { ...cur.settings, gammaMin: ref.settings.gammaMin }, Math.max(cur.stepCount, this.accepted));
+    this.refIds.set(this.curIds);
+    for (const a of this.book.list()) {
+      if (a.state === 'pending') this.book.cancel(a);
+      else this.book.resolve(a, ts, offset, resolution, { ...a.evidence, before: this.views(this.reference), after: this.views(this.current) });
+    }
+    this.pendingCount = 0;
+    if (this.phase === 'armed') this.resetDetectors();
+    else this.computeConsts();
+  }
+
+  // ---- state ----
+
+  exportState(): VectorMonitorState {
+    return {
+      version: 1,
+      stream: this.stream,
+      phase: this.phase,
+      d: this.d,
+      boot: this.boot === null ? null : Array.from(this.boot.subarray(0, this.bootCount * this.d)),
+      ref: this.ref === null ? null : mvToJSON(this.ref),
+      cur: this.cur === null ? null : mvToJSON(this.cur),
+      refIds: Array.from(this.refIds),
+      curIds: Array.from(this.curIds),
+      nextId: this.nextId,
+      shifts: this.shifts.exportState(),
+      owned: Array.from(this.owned),
+      fit: this.fit.exportState(),
+      novelty: this.novelty === null ? null : this.novelty.exportState(),
+      consts: Array.from(this.consts),
+      locSd: Array.from(this.locSd),
+      locPen: Array.from(this.locPen),
+      unit: Array.from(this.unit),
+      bgCenter: Array.from(this.bgCenter),
+      bgScale: Array.from(this.bgScale),
+      bgConst: this.bgConst,
+      surpriseMean: this.surpriseMean,
+      surpriseVar: this.surpriseVar,
+      surpriseCount: this.surpriseCount,
+      accepted: this.accepted,
+      lastTs: this.lastTs,
+      lastOffset: this.lastOffset,
+      pendingCount: this.pendingCount,
+      alerts: this.book.exportState(),
+    };
+  }
+
+  static importState(s: VectorMonitorState, config: MonitorConfig, listener: TransitionListener): VectorStreamMonitor {
+    if (s.version !== 1) throw new Error(`vector monitor state version ${s.version} is not supported`);
+    const m = new VectorStreamMonitor(s.stream, config, listener);
+    m.phase = s.phase;
+    if (s.d > 0) m.setDimension(s.d);
+    if (s.boot !== null) {
+      if (m.boot !== null) m.boot.set(s.boot);
+      m.bootCount = s.d > 0 ? s.boot.length / s.d : 0;
+    } else m.boot = null;
+    m.ref = s.ref === null ? null : onlineMvFromJSON(s.ref);
+    m.cur = s.cur === null ? null : onlineMvFromJSON(s.cur);
+    m.refIds.set(s.refIds);
+    m.curIds.set(s.curIds);
+    m.nextId = s.nextId;
+    m.shifts.importState(s.shifts);
+    m.owned.set(s.owned);
+    m.fit.importState(s.fit);
+    if (s.novelty !== null && m.novelty !== null) m.novelty.importState(s.novelty);
+    m.consts.set(s.consts);
+    m.locSd.set(s.locSd);
+    m.locPen.set(s.locPen);
+    m.unit.set(s.unit);
+    m.bgCenter.set(s.bgCenter);
+    m.bgScale.set(s.bgScale);
+    m.bgConst = s.bgConst;
+    m.surpriseMean = s.surpriseMean;
+    m.surpriseVar = s.surpriseVar;
+    m.surpriseCount = s.surpriseCount;
+    m.accepted = s.accepted;
+    m.lastTs = s.lastTs;
+    m.lastOffset = s.lastOffset;
+    m.pendingCount = s.pendingCount;
+    m.book.importState(s.alerts);
+    return m;
+  }
+}
+
+export interface VectorMonitorState {
+  version: 1;
+  stream: string;
+  phase: VectorMonitorPhase;
+  d: number;
+  boot: number[] | null;
+  ref: OnlineMvDocument | null;
+  cur: OnlineMvDocument | null;
+  refIds: number[];
+  curIds: number[];
+  nextId: number;
+  shifts: number[];
+  owned: number[];
+  fit: number[];
+  novelty: VectorNoveltyState | null;
+  consts: number[];
+  locSd: number[];
+  locPen: number[];
+  unit: number[];
+  bgCenter: number[];
+  bgScale: number[];
+  bgConst: number;
+  surpriseMean: number;
+  surpriseVar: number;
+  surpriseCount: number;
+  accepted: number;
+  lastTs: number;
+  lastOffset: number;
+  pendingCount: number;
+  alerts: ActiveAlert[];
+}
+
+/** A copy of m without component j, weights renormalised (same frame). */
+function dropComponent(m: MvMixture, j: number): MvMixture {
+  const d = m.d;
+  const out = new MvMixture(m.k - 1, d, { center: m.center, scale: m.scale }, m.regCovar);
+  for (let a = 0, t = 0; a < m.k; a++) {
+    if (a === j) continue;
+    out.weights[t] = m.weights[a];
+    out.frameMeans.set(m.frameMeans.subarray(a * d, (a + 1) * d), t * d);
+    out.frameCovariances.set(m.frameCovariances.subarray(a * d * d, (a + 1) * d * d), t * d * d);
+    t++;
+  }
+  out.normalizeWeights();
+  out.refresh();
+  return out;
+}
+
+function statKind(type: number): AlertKind {
+  return type === VANISH ? 'mode_vanished' : type < LOC ? 'weight_shift' : 'location_shift';
+}
+
+function statName(type: number): string {
+  if (type === W_UP) return 'cusum_weight_up';
+  if (type === W_DOWN) return 'cusum_weight_down';
+  if (type === VANISH) return 'cusum_weight_vanish';
+  const axis = (type - LOC) >> 1;
+  return `cusum_location_${(type - LOC) % 2 === 0 ? 'up' : 'down'}_axis${axis}`;
+}
+
+function indexOf(ids: Int32Array, k: number, id: number): number {
+  for (let j = 0; j < k; j++) if (ids[j] === id) return j;
+  return -1;
+}
+
+function pct(w: number): string {
+  return `${(100 * w).toFixed(1)} %`;
+}
+
+function fmt(x: number): string {
+  return Math.abs(x) >= 1e5 || (Math.abs(x) < 1e-3 && x !== 0) ? x.toExponential(3) : Number(x.toPrecision(4)).toString();
+}
+
+function vec(v: ArrayLike<number>): string {
+  return `(${Array.from(v, fmt).join(', ')})`;
+}
