@@ -220,7 +220,16 @@ async function startJarBroker(readyTimeoutMs: number, log: (l: string) => void):
   throw lastError ?? new Error('Kafka broker did not start');
 }
 
-async function launchOnce(libs: string, readyTimeoutMs: number, log: (l: string) => void): Promise<BrokerHandle> {
+interface BrokerLayout {
+  dir: string;
+  port: number;
+  ctrl: number;
+  jvm: string[];
+  cp: string[];
+}
+
+/** A temp dir with server.properties (fresh free ports) and log4j.properties, and its storage formatted. */
+async function prepareLayout(libs: string): Promise<BrokerLayout> {
   const dir = mkdtempSync(join(tmpdir(), 'modewatch-kafka-'));
   const port = await freePort();
   const ctrl = await freePort();
@@ -242,12 +251,24 @@ async function launchOnce(libs: string, readyTimeoutMs: number, log: (l: string)
     rmSync(dir, { recursive: true, force: true });
     throw new Error(`Kafka storage format failed: ${format.error?.message ?? lastLines(`${format.stdout}\n${format.stderr}`, 10)}`);
   }
+  return { dir, port, ctrl, jvm, cp };
+}
 
-  const logFile = join(dir, 'broker.log');
-  const out = createWriteStream(logFile);
-  const child = spawn('bash', ['-c', WRAPPER, 'kafka-broker', 'java', ...jvm, ...cp, 'kafka.Kafka', join(dir, 'server.properties')], {
+interface RunningJava {
+  /** SIGTERM (a clean Kafka shutdown), SIGKILL after 20 s; then the log file is closed. Idempotent. */
+  halt(): Promise<void>;
+}
+
+/**
+ * Starts java on a prepared layout and waits for "Kafka Server started". `ownsDir`: the wrapper removes the dir
+ * when java ends (a one-shot broker); a restartable broker keeps it for the next start.
+ */
+async function runJava(l: BrokerLayout, readyTimeoutMs: number, ownsDir: boolean, onExitCleanup: () => void): Promise<RunningJava> {
+  const logFile = join(l.dir, 'broker.log');
+  const out = createWriteStream(logFile, { flags: 'a' });
+  const child = spawn('bash', ['-c', WRAPPER, 'kafka-broker', 'java', ...l.jvm, ...l.cp, 'kafka.Kafka', join(l.dir, 'server.properties')], {
     stdio: ['pipe', 'pipe', 'pipe'],
-    env: { ...process.env, MODEWATCH_KAFKA_TMP: dir },
+    env: ownsDir ? { ...process.env, MODEWATCH_KAFKA_TMP: l.dir } : { ...process.env, MODEWATCH_KAFKA_TMP: '' },
   });
   let tail = '';
   let started = false;
@@ -262,23 +283,26 @@ async function launchOnce(libs: string, readyTimeoutMs: number, log: (l: string)
   // If this process exits without stop(), take the broker down with it (the wrapper covers harder deaths).
   const onExit = () => {
     child.kill('SIGKILL');
-    rmSync(dir, { recursive: true, force: true });
+    onExitCleanup();
   };
   process.once('exit', onExit);
 
-  const stop = async (): Promise<void> => {
-    process.removeListener('exit', onExit);
-    if (child.exitCode === null && child.signalCode === null) {
-      child.kill('SIGTERM');
-      const done = await Promise.race([exited.then(() => true), sleep(20_000).then(() => false)]);
-      if (!done) {
-        child.kill('SIGKILL');
-        await Promise.race([exited, sleep(5_000)]);
+  let halting: Promise<void> | null = null;
+  const halt = (): Promise<void> => {
+    halting ??= (async () => {
+      process.removeListener('exit', onExit);
+      if (child.exitCode === null && child.signalCode === null) {
+        child.kill('SIGTERM');
+        const done = await Promise.race([exited.then(() => true), sleep(20_000).then(() => false)]);
+        if (!done) {
+          child.kill('SIGKILL');
+          await Promise.race([exited, sleep(5_000)]);
+        }
       }
-    }
-    child.stdin?.destroy();
-    await new Promise<void>((res) => out.end(() => res()));
-    rmSync(dir, { recursive: true, force: true });
+      child.stdin?.destroy();
+      await new Promise<void>((res) => out.end(() => res()));
+    })();
+    return halting;
   };
 
   const t0 = Date.now();
@@ -287,18 +311,98 @@ async function launchOnce(libs: string, readyTimeoutMs: number, log: (l: string)
   while (!started) {
     if (exitCode !== undefined) {
       const lines = lastLines(tail, 20);
-      await stop();
+      await halt();
       throw new Error(`Kafka broker (java) exited with code ${exitCode} before it was ready:\n${lines}`);
     }
     if (Date.now() - t0 > readyTimeoutMs) {
       const lines = lastLines(tail, 20);
-      await stop();
+      await halt();
       throw new Error(`Kafka broker did not report "Kafka Server started" within ${readyTimeoutMs} ms:\n${lines}`);
     }
     await sleep(100);
   }
-  log(`Kafka ${KAFKA_VERSION} (KRaft, jars) up on 127.0.0.1:${port} after ${Date.now() - t0} ms; logs in ${logFile}`);
-  return { brokers: [`127.0.0.1:${port}`], how: `Kafka ${KAFKA_VERSION} jars (KRaft, java) in ${dir}`, stop };
+  return { halt };
+}
+
+async function launchOnce(libs: string, readyTimeoutMs: number, log: (l: string) => void): Promise<BrokerHandle> {
+  const l = await prepareLayout(libs);
+  const removeDir = () => rmSync(l.dir, { recursive: true, force: true });
+  const t0 = Date.now();
+  let java: RunningJava;
+  try {
+    java = await runJava(l, readyTimeoutMs, true, removeDir);
+  } catch (e) {
+    removeDir();
+    throw e;
+  }
+  log(`Kafka ${KAFKA_VERSION} (KRaft, jars) up on 127.0.0.1:${l.port} after ${Date.now() - t0} ms; logs in ${join(l.dir, 'broker.log')}`);
+  return {
+    brokers: [`127.0.0.1:${l.port}`],
+    how: `Kafka ${KAFKA_VERSION} jars (KRaft, java) in ${l.dir}`,
+    stop: async () => {
+      await java.halt();
+      removeDir();
+    },
+  };
+}
+
+/** A jar broker that can be taken down and brought back on the same ports and log dir (broker outage tests). */
+export interface RestartableBroker extends BrokerHandle {
+  /** Clean shutdown (SIGTERM, as an operator would), keeping ports, log dir and data. */
+  halt(): Promise<void>;
+  /** Starts it again on the same ports and log dir; resolves once it reports it has started. */
+  restart(): Promise<void>;
+  readonly running: boolean;
+}
+
+/**
+ * Always the Kafka jars (restarting needs a broker this process runs itself): throws when Java 17 is missing.
+ * Ports can be taken by another process while the broker is down; restart() then fails with a BindException.
+ */
+export async function startRestartableBroker(options: StartBrokerOptions = {}): Promise<RestartableBroker> {
+  const log = options.log ?? (() => {});
+  const readyMs = options.readyTimeoutMs ?? 90_000;
+  const java = javaProblem();
+  if (java !== null) throw new Error(`no restartable Kafka broker: ${java}`);
+  const libs = ensureKafkaJars(defaultLibsDir(), log);
+  const l = await prepareLayout(libs);
+  const removeDir = () => rmSync(l.dir, { recursive: true, force: true });
+  let current: RunningJava | null = null;
+  const launch = async () => {
+    const t0 = Date.now();
+    current = await runJava(l, readyMs, false, removeDir);
+    log(`Kafka ${KAFKA_VERSION} (KRaft, jars, restartable) up on 127.0.0.1:${l.port} after ${Date.now() - t0} ms; logs in ${join(l.dir, 'broker.log')}`);
+  };
+  try {
+    await launch();
+  } catch (e) {
+    removeDir();
+    throw e;
+  }
+  // While halted no java runs, so no per-launch exit hook covers the dir.
+  process.once('exit', removeDir);
+  const halt = async () => {
+    const j = current;
+    current = null;
+    await j?.halt();
+  };
+  return {
+    brokers: [`127.0.0.1:${l.port}`],
+    how: `Kafka ${KAFKA_VERSION} jars (KRaft, java, restartable) in ${l.dir}`,
+    get running() {
+      return current !== null;
+    },
+    halt,
+    restart: async () => {
+      if (current !== null) throw new Error('restart: the broker is running');
+      await launch();
+    },
+    stop: async () => {
+      await halt();
+      process.removeListener('exit', removeDir);
+      removeDir();
+    },
+  };
 }
 
 // ---------------------------------------------------------------------------------------------- helpers
