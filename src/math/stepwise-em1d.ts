@@ -67,9 +67,11 @@ const Z_CLIP = 1e8;
 export class OnlineMixture1D {
   readonly scale: ScaleName;
   readonly options: StepwiseOptions;
+  // Numeric fields are declared with a number so that V8 keeps them as unboxed doubles: a field
+  // that starts as undefined becomes tagged, and the hot path then boxes (allocates) on every event.
   /** Standardisation: z = (y - center) / unit. */
-  readonly center: number;
-  readonly unit: number;
+  readonly center: number = 0;
+  readonly unit: number = 1;
   private readonly cap: number;
   private readonly buf: Float64Array;
   private readonly idBuf: Int32Array;
@@ -80,16 +82,25 @@ export class OnlineMixture1D {
   /** Effective number of events in the event-time window (half-life mode). */
   private nEff = 0;
   private lastTs = Number.NaN;
-  private readonly floorVar: number;
-  private readonly tSwitch: number;
-  private readonly gammaMin: number;
+  private readonly floorVar: number = 0;
+  private readonly tSwitch: number = 0;
+  private readonly gammaMin: number = 0;
   /** Background density on z: Cauchy(0, bgScale) with weight ε. */
-  private readonly bgScale: number;
-  private readonly bgWeight: number;
+  private readonly bgScale: number = 0;
+  private readonly bgWeight: number = 0;
   /** Density (standardised units) of the last event, or 0 when it was computed in the log domain. */
   private lastDensity = 0;
   private lastLogDensityFallback = 0;
   private lastZ = 0;
+  // Hot-path copies of options (no lookups through this.options per event).
+  private readonly t0: number = 0;
+  private readonly alpha: number = 0;
+  private readonly halfLifeMs: number = 0;
+  /** Value and time handed from the small public wrappers to the E/M steps (doubles pass through fields, not calls). */
+  private inY = 0;
+  private inTs = 0;
+  /** Step size of the current event, written by schedule(). */
+  private gamma = 0;
 
   constructor(scale: ScaleName, center: number, unit: number, options: Partial<StepwiseOptions> = {}) {
     const o = { ...DEFAULT_STEPWISE, ...options };
@@ -110,6 +121,9 @@ export class OnlineMixture1D {
     this.tSwitch = Math.pow(this.gammaMin, -1 / o.alpha) - o.t0;
     this.bgScale = 8; // eight bootstrap spreads: broad against the components
     this.bgWeight = o.backgroundWeight;
+    this.t0 = o.t0;
+    this.alpha = o.alpha;
+    this.halfLifeMs = o.halfLifeMs;
   }
 
   /** Start from a fitted mixture (its scale must match). Weights are renormalised. `t` sets how far along the schedule it is. */
@@ -143,8 +157,11 @@ export class OnlineMixture1D {
 
   /** Learn from one value y on the model scale, at event time ts (ms). Returns this. */
   update(y: number, ts: number): this {
-    this.evaluate(y);
-    return this.learn(ts);
+    this.inY = y;
+    this.inTs = ts;
+    this.eStep();
+    this.mStep();
+    return this;
   }
 
   /**
@@ -153,6 +170,12 @@ export class OnlineMixture1D {
    * them between the two calls, so their statistics use parameters fixed before the event.
    */
   evaluate(y: number): void {
+    // Small on purpose: V8 inlines it into the caller, so y reaches eStep through a field without being boxed.
+    this.inY = y;
+    this.eStep();
+  }
+
+  private eStep(): void {
     const k = this.kActive;
     const b = this.buf;
     if (k === 0) {
@@ -160,7 +183,7 @@ export class OnlineMixture1D {
       this.lastLogDensityFallback = -Infinity;
       return;
     }
-    let z = (y - this.center) / this.unit;
+    let z = (this.inY - this.center) / this.unit;
     if (z > Z_CLIP) z = Z_CLIP;
     else if (z < -Z_CLIP) z = -Z_CLIP;
     this.lastZ = z;
@@ -189,11 +212,18 @@ export class OnlineMixture1D {
 
   /** M-step for the value given to the last evaluate(). */
   learn(ts: number): this {
+    this.inTs = ts;
+    this.mStep();
+    return this;
+  }
+
+  private mStep(): void {
     const k = this.kActive;
-    if (k === 0) return this;
+    if (k === 0) return;
     const b = this.buf;
     const z = this.lastZ;
-    const gamma = this.stepSize(ts);
+    this.schedule();
+    const gamma = this.gamma;
     const keep = 1 - gamma;
     // M-step on the statistics, per component (stable weighted mean/variance form).
     let s0sum = 0;
@@ -216,7 +246,6 @@ export class OnlineMixture1D {
       s0sum = 1;
     }
     this.refresh(s0sum);
-    return this;
   }
 
   /** Log density (model scale, background included) of the last event given to update(). */
@@ -246,20 +275,28 @@ export class OnlineMixture1D {
     for (let j = 0; j < k; j++) b[j * FIELDS + RESP] /= s;
   }
 
-  private stepSize(ts: number): number {
+  /** Advance the schedule by one event and set this.gamma (γ_t, see the header) for it. */
+  private schedule(): void {
     this.t++;
     const t = this.t;
-    let gamma = t > this.tSwitch ? this.gammaMin : Math.max(Math.pow(t + this.options.t0, -this.options.alpha), this.gammaMin);
-    const h = this.options.halfLifeMs;
+    const h = this.halfLifeMs;
+    if (h === 0 && t > this.tSwitch) {
+      this.gamma = this.gammaMin; // the common steady state: a constant step
+      return;
+    }
+    // α = 1 is a plain division (bit-identical to Math.pow(x, -1), which returns 1/x).
+    const sched = t > this.tSwitch ? 0 : this.alpha === 1 ? 1 / (t + this.t0) : Math.pow(t + this.t0, -this.alpha);
+    let gamma = sched > this.gammaMin ? sched : this.gammaMin;
     if (h > 0) {
+      const ts = this.inTs;
       const prev = this.lastTs;
       const dt = prev === prev && ts > prev ? ts - prev : 0;
       if (ts > prev || prev !== prev) this.lastTs = ts;
       this.nEff = (dt > 0 ? this.nEff * Math.pow(2, -dt / h) : this.nEff) + 1;
-      const sched = t > this.tSwitch ? 0 : Math.pow(t + this.options.t0, -this.options.alpha);
-      gamma = Math.max(sched, 1 / this.nEff);
+      const inv = 1 / this.nEff;
+      gamma = sched > inv ? sched : inv;
     }
-    return gamma > 1 ? 1 : gamma;
+    this.gamma = gamma > 1 ? 1 : gamma;
   }
 
   /** Recompute weights, floored sds and density coefficients from the statistics. */
