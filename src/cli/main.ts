@@ -5,6 +5,7 @@
 import yargs from 'yargs';
 import { hideBin } from 'yargs/helpers';
 import { configCommand } from './config-command.js';
+import { demoCommand } from './demo-command.js';
 import { fitCommand } from './fit-command.js';
 import { replayCommand } from './replay-command.js';
 import { runCommand } from './run-command.js';
@@ -20,6 +21,7 @@ async function main(argv: string[]): Promise<void> {
     .command(replayCommand)
     .command(fitCommand)
     .command(simulateCommand)
+    .command(demoCommand)
     .command(configCommand)
     .demandCommand(1, 'Name a command (see --help).')
     .strict()

@@ -23,7 +23,9 @@ const SUM = 5;
 const DECAY = 6;
 const LLR = 7;
 const START_COUNT = 8;
-const F = 9;
+/** Expected share of events in the bin under the reference. */
+const P = 9;
+const F = 10;
 
 /** Inner bins at level one (two open tail bins are added). */
 const MAX_BINS = 40;
@@ -37,8 +39,10 @@ export interface NoveltyCandidate {
   mean: number;
   /** Suggested sd on the model scale. */
   sd: number;
-  /** Estimated share of events in the new mode. */
+  /** Share of events that fell in the bin since the excursion began. */
   weight: number;
+  /** That share minus what the reference expects there: the evidence of something new. */
+  excess: number;
   statistic: number;
   firstOffset: number;
   firstTs: number;
@@ -90,6 +94,7 @@ export class NoveltyGrid {
     // Bernoulli CUSUM per bin: a hit adds ln(q/p), a miss ln((1-q)/(1-p)) with q = p + Δ (kept below 1).
     const setBin = (i: number, p: number, share: number) => {
       const pp = Math.min(Math.max(p, 1e-12), 0.999);
+      this.v[i * F + P] = pp;
       const q = Math.min(pp + Math.max(minNewModeWeight * share, (RATIO - 1) * pp), 0.5 * (1 + pp));
       this.v[i * F + DECAY] = -Math.log((1 - q) / (1 - pp));
       this.v[i * F + LLR] = Math.log(q / pp);
@@ -159,6 +164,7 @@ export class NoveltyGrid {
       mean: this.v[o + SUM] / Math.max(1, n),
       sd: (level2 ? 1 : 0.5) * this.width,
       weight: Math.min(0.5, n / Math.max(1, age)),
+      excess: Math.max(0, n / Math.max(1, age) - this.v[o + P]),
       statistic: this.value(bin),
       firstOffset: this.v[o + START_OFFSET],
       firstTs: this.v[o + START_TS],

@@ -56,6 +56,8 @@ const SOURCE_FIT = -1;
 const SOURCE_BORN = -2;
 
 const HOUSEKEEPING_EVERY = 256;
+/** Gain of the moving average of each component's responsibility (about the last 64 events). */
+const RECENT_GAIN = 1 / 64;
 const FIT_SLACK = 0.5;
 const FIT_CLIP = 3;
 
@@ -75,6 +77,8 @@ export class StreamMonitor {
   private readonly fit = new CusumBank(1);
   private readonly grid = new NoveltyGrid();
   private readonly consts: Float64Array;
+  /** Per reference component, a short moving average of its responsibility: what its weight is right now. */
+  private readonly recentShare: Float64Array;
   private surpriseMean = 0;
   private surpriseVar = 1;
   private surpriseCount = 0;
@@ -92,6 +96,7 @@ export class StreamMonitor {
     this.shifts = new CusumBank(config.capacity * PER_COMPONENT);
     this.owned = new Uint8Array(config.capacity * PER_COMPONENT);
     this.consts = new Float64Array(config.capacity * CONSTS);
+    this.recentShare = new Float64Array(config.capacity);
     this.book = new AlertBook(stream, listener);
     this.boot = new Float64Array(config.bootstrapEvents);
     if (config.known !== null) this.startFromKnown();
@@ -184,8 +189,10 @@ export class StreamMonitor {
     const shiftPenalty = Math.exp(-0.5 * lambda * lambda);
     let maxStat = 0;
     const cs = this.consts;
+    const share = this.recentShare;
     for (let j = 0; j < k; j++) {
       const r = ref.responsibility(j);
+      share[j] += RECENT_GAIN * (r - share[j]);
       const c = j * CONSTS;
       const base = j * PER_COMPONENT;
       let lz = (lambda * (y - ref.mean(j))) / ref.sd(j);
@@ -267,6 +274,12 @@ export class StreamMonitor {
       this.owned[i] = 2;
       return;
     }
+    // A mode has vanished only if it is (nearly) absent from the last events, not merely rarer: under a large weight
+    // shift the vanish statistic, whose alternative is far from the truth, can cross on a short run of luck.
+    if (type === VANISH && this.recentShare[j] > 2 * this.config.vanishFraction * ref.weight(j)) {
+      this.shifts.reset(i);
+      return;
+    }
     // A vanishing component also shows as a weight decrease: the more specific alert wins.
     if (type === VANISH) {
       const ws = this.book.get(this.book.key('weight_shift', id));
@@ -292,6 +305,8 @@ export class StreamMonitor {
     const ref = this.ref as OnlineMixture1D;
     const cur = this.cur as OnlineMixture1D;
     this.grid.clear(bin);
+    // Too little excess to be a mode worth an alert: a misfit of the reference's tail, or a short burst.
+    if (cand.excess < 0.5 * this.config.minNewModeWeight) return;
     // Not new if a component born earlier already sits there (a mode in the making). While the stream
     // has an active alert the reference is frozen against a changed stream, so a candidate must also be
     // unexplained by the current model.
@@ -308,7 +323,7 @@ export class StreamMonitor {
         return;
       }
     }
-    const id = cur.addComponent(cand.mean, cand.sd, Math.max(cand.weight, this.config.minNewModeWeight));
+    const id = cur.addComponent(cand.mean, cand.sd, cand.excess);
     if (id < 0) return; // at capacity
     const a = this.book.open('mode_emerged', id, SOURCE_BORN, this.accepted, ts, this.emergedEvidence(id, cand.statistic));
     a.evidence.firstEvidenceOffset = cand.firstOffset;
@@ -456,15 +471,17 @@ export class StreamMonitor {
    */
   private learnStructure(y: number, offset: number, ts: number): void {
     if (this.config.known !== null) return;
-    const bin = this.grid.step(y, offset, ts, this.config.threshold);
+    // Half the alert threshold: a silent birth costs only a component, and it should catch what the batch fit missed.
+    const bin = this.grid.step(y, offset, ts, 0.5 * this.config.threshold);
     if (bin < 0) return;
     const cand = this.grid.candidate(bin);
     this.grid.clear(bin);
+    if (cand.excess < 0.25 * this.config.minNewModeWeight) return;
     const ref = this.ref as OnlineMixture1D;
     const cur = this.cur as OnlineMixture1D;
     for (let j = 0; j < ref.k; j++) if (Math.abs(cand.mean - ref.mean(j)) < 2 * ref.sd(j)) return;
-    const id = ref.addComponent(cand.mean, cand.sd, Math.max(cand.weight, this.config.minNewModeWeight));
-    if (id > 0) cur.addComponent(cand.mean, cand.sd, Math.max(cand.weight, this.config.minNewModeWeight), id);
+    const id = ref.addComponent(cand.mean, cand.sd, cand.excess);
+    if (id > 0) cur.addComponent(cand.mean, cand.sd, cand.excess, id);
     this.grid.configure(ref, this.config.minNewModeWeight);
   }
 
@@ -503,6 +520,7 @@ export class StreamMonitor {
     this.fit.resetAll();
     this.grid.configure(ref, this.config.minNewModeWeight);
     this.computeConsts();
+    for (let j = 0; j < ref.k; j++) this.recentShare[j] = ref.weight(j);
   }
 
   private computeConsts(): void {
@@ -608,6 +626,7 @@ export class StreamMonitor {
       fit: this.fit.exportState(),
       grid: this.grid.exportState(),
       consts: Array.from(this.consts),
+      recentShare: Array.from(this.recentShare),
       surpriseMean: this.surpriseMean,
       surpriseVar: this.surpriseVar,
       surpriseCount: this.surpriseCount,
@@ -638,6 +657,7 @@ export class StreamMonitor {
     m.fit.importState(s.fit);
     m.grid.importState(s.grid);
     m.consts.set(s.consts);
+    m.recentShare.set(s.recentShare);
     m.surpriseMean = s.surpriseMean;
     m.surpriseVar = s.surpriseVar;
     m.surpriseCount = s.surpriseCount;
@@ -664,6 +684,7 @@ export interface MonitorState {
   fit: number[];
   grid: ReturnType<NoveltyGrid['exportState']>;
   consts: number[];
+  recentShare: number[];
   surpriseMean: number;
   surpriseVar: number;
   surpriseCount: number;

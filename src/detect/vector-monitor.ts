@@ -193,25 +193,23 @@ export class VectorStreamMonitor {
     // Reference responsibilities once per event, with the background.
     const eps = this.config.outlierWeight;
     const logG = ref.mixture.responsibilities(xv, this.resp);
-    let logP = logG;
-    let rG = 1;
-    if (eps > 0) {
-      const a = Math.log1p(-eps) + logG;
-      const b = Math.log(eps) + this.bgLogPdf(xv);
-      logP = a > b ? a + Math.log1p(Math.exp(b - a)) : b + Math.log1p(Math.exp(a - b));
-      rG = Math.exp(a - logP);
-    }
+    const logP = this.withBackground(logG);
+    const rG = eps > 0 ? Math.exp(Math.log1p(-eps) + logG - logP) : 1;
     const surprise = -logP;
+    // The current model's view: a new mode must be unexplained by what is normal AND by what is happening.
+    const curBefore = this.cur as OnlineMvMixture;
+    const curLogP = this.withBackground(curBefore.mixture.logpdf(xv));
+    const novelSurprise = Math.min(surprise, -curLogP);
 
     let quiet = true;
-    if (this.phase === 'armed') quiet = this.detect(ref, rG, surprise, ts, offset);
+    if (this.phase === 'armed') quiet = this.detect(ref, rG, surprise, novelSurprise, ts, offset);
     else if (this.accepted >= this.config.warmupEvents) this.arm();
-    else this.learnStructure(rG, surprise, ts, offset);
+    else this.learnStructure(novelSurprise, ts, offset);
 
     if (quiet && rG > 0.5) (this.ref as OnlineMvMixture).update(xv);
     if (quiet) this.learnSurprise(surprise);
     const cur = this.cur as OnlineMvMixture; // a birth may have replaced it
-    if (this.explainedByGaussians(cur, xv)) cur.update(xv);
+    if (cur === curBefore ? this.gaussiansWin(curLogP, xv) : this.gaussiansWin(this.withBackground(cur.mixture.logpdf(xv)), xv)) cur.update(xv);
     if (this.accepted % HOUSEKEEPING_EVERY === 0) this.housekeeping(ts, offset, quiet);
     return null;
   }
@@ -224,7 +222,7 @@ export class VectorStreamMonitor {
 
   // ---- detection (per event) ----
 
-  private detect(ref: OnlineMvMixture, rG: number, surprise: number, ts: number, offset: number): boolean {
+  private detect(ref: OnlineMvMixture, rG: number, surprise: number, novelSurprise: number, ts: number, offset: number): boolean {
     const cfg = this.config;
     const h = cfg.threshold;
     const k = ref.k;
@@ -279,7 +277,7 @@ export class VectorStreamMonitor {
     const fitStat = this.fit.step(0, zf - FIT_SLACK, offset, ts);
     if (fitStat >= cfg.fitThreshold && this.book.get(this.book.key('poor_fit', null)) === undefined) this.openFit(ts);
 
-    const cand = this.tagAndSearch(rG, surprise, ts, offset);
+    const cand = this.tagAndSearch(novelSurprise, ts, offset);
     if (cand !== null && cand.statistic >= h) this.onNovelty(cand, ts);
 
     if (this.pendingCount > 0) this.confirmPending(ts, offset);
@@ -337,9 +335,14 @@ export class VectorStreamMonitor {
     return s;
   }
 
-  /** Keep a badly explained event and, if enough recent ones are kept, look for a cluster. */
-  private tagAndSearch(rG: number, surprise: number, ts: number, offset: number): VectorCandidate | null {
-    const tagged = rG < 0.5 || (this.surpriseCount >= TAG_MIN_COUNT && surprise > this.surpriseMean + TAG_SDS * Math.sqrt(this.surpriseVar));
+  /**
+   * Keep a badly explained event and, if enough recent ones are kept, look for a cluster. `surprise` is the
+   * smaller of −ln p_ref(x) and −ln p_cur(x): an event is tagged when both models explain it badly (its
+   * surprise is TAG_SDS quiet sds above the quiet mean, or the background is likelier than the Gaussians).
+   */
+  private tagAndSearch(surprise: number, ts: number, offset: number): VectorCandidate | null {
+    const byBackground = this.config.outlierWeight > 0 && surprise > -this.bgLogOdds();
+    const tagged = byBackground || (this.surpriseCount >= TAG_MIN_COUNT && surprise > this.surpriseMean + TAG_SDS * Math.sqrt(this.surpriseVar));
     if (!tagged) return null;
     const nov = this.novelty as VectorNovelty;
     nov.push(this.xv, surprise, this.accepted, ts, offset);
@@ -623,8 +626,8 @@ export class VectorStreamMonitor {
    * During warm-up, a cluster the bootstrap fit explains badly (a mode too small for the first batch)
    * gets a component in both models, silently: it is part of what is normal.
    */
-  private learnStructure(rG: number, surprise: number, ts: number, offset: number): void {
-    const cand = this.tagAndSearch(rG, surprise, ts, offset);
+  private learnStructure(surprise: number, ts: number, offset: number): void {
+    const cand = this.tagAndSearch(surprise, ts, offset);
     if (cand === null || cand.statistic < this.config.threshold) return;
     const nov = this.novelty as VectorNovelty;
     const ref = this.ref as OnlineMvMixture;
@@ -707,11 +710,27 @@ export class VectorStreamMonitor {
     return s;
   }
 
-  /** Whether the Gaussians of `model` explain x better than the background (only then does it learn from x). */
-  private explainedByGaussians(model: OnlineMvMixture, x: Float64Array): boolean {
+  /** ln((1 − ε)·e^logG + ε·g(x)) for the Gaussian part's log density logG at this.xv. */
+  private withBackground(logG: number): number {
     const eps = this.config.outlierWeight;
-    if (eps === 0) return true;
-    return Math.log1p(-eps) + model.mixture.logpdf(x) > Math.log(eps) + this.bgLogPdf(x);
+    if (eps === 0) return logG;
+    const a = Math.log1p(-eps) + logG;
+    const b = Math.log(eps) + this.bgLogPdf(this.xv);
+    return a > b ? a + Math.log1p(Math.exp(b - a)) : b + Math.log1p(Math.exp(a - b));
+  }
+
+  /** Whether the Gaussians explain x better than the background, given logP = ln p(x) with the background. */
+  private gaussiansWin(logP: number, x: Float64Array): boolean {
+    const eps = this.config.outlierWeight;
+    return eps === 0 || Math.log(eps) + this.bgLogPdf(x) < logP - Math.LN2;
+  }
+
+  /**
+   * −ln of the density at which the background takes half of an event: surprise above it means the background is
+   * likelier than the Gaussians. Since p = (1−ε)p_G + ε g, the background wins when ε g > p/2, i.e. −ln p > −ln(2 ε g).
+   */
+  private bgLogOdds(): number {
+    return Math.log(2 * this.config.outlierWeight) + this.bgLogPdf(this.xv);
   }
 
   /** Running mean and variance of the surprise under the reference, learned while quiet. */
