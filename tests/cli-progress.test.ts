@@ -66,6 +66,16 @@ describe('progress display', () => {
     expect(tty.writes.length).toBe(3);
   });
 
+  it('takes a total that becomes known later', () => {
+    const tty = fakeTty(100);
+    let now = 0;
+    const p = createProgress({ unit: 'items', label: 'fitting', stream: tty, now: () => now });
+    now = 1000;
+    p.update(3, 12);
+    expect(tty.writes[0]).toContain('3 / 12  25%');
+    expect(tty.writes[0]).toContain('0:03 left');
+  });
+
   it('without a total shows the count, rate and elapsed time; no bar', () => {
     const line = formatProgressLine({ label: 'replaying', unit: 'events', done: 1_500_000, elapsedSeconds: 3 }, 80);
     expect(line).toBe('replaying  1.50M events  500.0k events/s  0:03 elapsed');

@@ -70,10 +70,10 @@ async function fitAndPrint(options: FitCommandOptions, io: FitIO): Promise<void>
   } finally {
     reading.finish();
   }
-  const fitting = createProgress({ unit: 'items', label: `fitting ${table.n} rows`, stream: io.stderr });
+  const fitting = createProgress({ unit: 'items', label: `fitting ${table.n} rows: candidate fits`, stream: io.stderr });
   let report;
   try {
-    report = fitTable(table, settings, { onFit: (done) => fitting.update(done) });
+    report = fitTable(table, settings, { onFit: (done, total) => fitting.update(done, total) });
   } finally {
     fitting.finish();
   }
@@ -104,7 +104,7 @@ interface FitArgs {
   plot?: string;
 }
 
-const JSON_HELP = `--json prints one object: {"k", "scale", "logLikelihood", "bic", "components": [{"weight", "mean", "sd", "cov"}], "candidates": [{"k", "logLikelihood", "bic"}], "columns", "n", "skipped", "notes"}. One column: "mean" and "sd" are numbers in the data's units; on the log and log1p scales they are the mean and sd of the log-normal component (x, or 1 + x, log-normal), and "location" (median), "spread" (half the central 68% interval), "logMean", "logSd" are given too. Several columns: "mean" and "sd" are arrays, "cov" the covariance matrix. Components are sorted by the mean of the first column.`;
+const JSON_HELP = `Print one JSON object: {"k", "scale", "logLikelihood", "bic", "components": [{"weight", "mean", "sd", "cov"}], "candidates": [{"k", "logLikelihood", "bic"}], "columns", "n", "skipped", "notes"}. One column: "mean" and "sd" are numbers in the data's units; on the log and log1p scales they are the mean and sd of the log-normal component (x, or 1 + x, log-normal), and "location" (median), "spread" (half the central 68% interval), "logMean", "logSd" are given too. Several columns: "mean" and "sd" are arrays, "cov" the covariance matrix. Components are sorted by the mean of the first column.`;
 
 export const fitCommand: CommandModule<object, FitArgs> = {
   command: 'fit <file>',

@@ -9,9 +9,10 @@
 import { stat } from 'node:fs/promises';
 import { readLineChunks } from '../ingest/line-reader.js';
 import { parseTextNumber, splitCsvLine } from '../ingest/records.js';
+import { UsageError } from './usage-error.js';
 
 /** A mistake in the user's input or flags: the CLI prints the message and exits with code 2. */
-export class FitInputError extends Error {
+export class FitInputError extends UsageError {
   readonly exitCode = 2;
   constructor(message: string) {
     super(message);

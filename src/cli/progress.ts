@@ -40,8 +40,8 @@ export interface ProgressOptions {
 }
 
 export interface Progress {
-  /** Record that `done` units of work are complete (absolute, not an increment). */
-  update(done: number): void;
+  /** Record that `done` units of work are complete (absolute, not an increment); `total` if it became known. */
+  update(done: number, total?: number): void;
   /** Draw the final state and end the line (on a TTY); afterwards update() does nothing. */
   finish(): void;
   /** Whether this display draws anything at all (the stream is a TTY). */
@@ -56,7 +56,8 @@ export function createProgress(options: ProgressOptions): Progress {
   const now = options.now ?? (() => performance.now());
   const unit = options.unit ?? 'items';
   const minInterval = options.minIntervalMs ?? 100;
-  const total = options.total !== undefined && Number.isFinite(options.total) && options.total > 0 ? options.total : undefined;
+  const validTotal = (t: number | undefined): number | undefined => (t !== undefined && Number.isFinite(t) && t > 0 ? t : undefined);
+  let total = validTotal(options.total);
   const start = now();
   let lastDraw = -Infinity;
   let done = 0;
@@ -66,7 +67,9 @@ export function createProgress(options: ProgressOptions): Progress {
   const draw = (final: boolean): void => {
     const t = now();
     const elapsed = (t - start) / 1000;
-    const line = formatProgressLine({ label: options.label, unit, done, total, elapsedSeconds: elapsed, final }, stream.columns ?? 80);
+    // A pseudo-terminal without a size reports 0 columns.
+    const columns = stream.columns !== undefined && stream.columns > 0 ? stream.columns : 80;
+    const line = formatProgressLine({ label: options.label, unit, done, total, elapsedSeconds: elapsed, final }, columns);
     // \r returns to the line start; ESC[K clears what a longer previous line left behind (ECMA-48 EL).
     stream.write('\r' + line + '\x1b[K' + (final ? '\n' : ''));
     lastDraw = t;
@@ -75,9 +78,10 @@ export function createProgress(options: ProgressOptions): Progress {
 
   return {
     active: true,
-    update(d: number): void {
+    update(d: number, t?: number): void {
       if (finished) return;
       done = d;
+      if (t !== undefined) total = validTotal(t);
       if (now() - lastDraw >= minInterval) draw(false);
     },
     finish(): void {
@@ -115,12 +119,16 @@ export function formatProgressLine(s: ProgressState, columns: number): string {
   else parts.push(`${formatDuration(s.elapsedSeconds)} elapsed`);
   const text = parts.join('  ');
   const width = Math.max(20, columns - 1); // the last column would make some terminals wrap
-  let line = `${s.label}  ${text}`;
+  // The numbers matter more than the label: shorten the label first, then the bar goes.
+  let label = s.label;
+  const room = width - text.length - 2;
+  if (label.length > room) label = room >= 8 ? label.slice(0, room - 1) + '…' : '';
+  let line = label === '' ? text : `${label}  ${text}`;
   if (fraction !== undefined) {
     const barWidth = Math.min(40, width - line.length - 4);
     if (barWidth >= 10) {
       const full = Math.round(fraction * barWidth);
-      line = `${s.label}  [${'#'.repeat(full)}${'.'.repeat(barWidth - full)}]  ${text}`;
+      line = `${label}  [${'#'.repeat(full)}${'.'.repeat(barWidth - full)}]  ${text}`;
     }
   }
   if (line.length > width) line = line.slice(0, width - 1) + '…';
@@ -141,6 +149,7 @@ function formatAmount(v: number, unit: ProgressUnit): string {
   const word = unit === 'items' ? '' : ` ${unit}`;
   if (v >= 1e6) return `${(v / 1e6).toFixed(v < 1e7 ? 2 : 1)}M${word}`;
   if (v >= 1e4) return `${(v / 1e3).toFixed(1)}k${word}`;
+  if (v < 10 && !Number.isInteger(v)) return `${v.toFixed(1)}${word}`; // slow rates: 0.4/s, not 0/s
   return `${Math.round(v)}${word}`;
 }
 
