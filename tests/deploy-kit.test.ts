@@ -66,8 +66,8 @@ describe('compose.yaml', () => {
     expect(env.KAFKA_CONTROLLER_QUORUM_VOTERS).toBe(`${env.KAFKA_NODE_ID}@kafka:9093`);
     expect(env.KAFKA_OFFSETS_TOPIC_REPLICATION_FACTOR).toBe(1);
     const advertised = String(env.KAFKA_ADVERTISED_LISTENERS).replace(/^PLAINTEXT:\/\//, '');
-    const cfg = yamlFile<{ source: { brokers: string[] } }>(join(DEPLOY, 'modewatch.example.yaml'));
-    expect(cfg.source.brokers).toEqual([advertised]);
+    const cfg = yamlFile<{ kafka: { brokers: string[] } }>(join(DEPLOY, 'modewatch.example.yaml'));
+    expect(cfg.kafka.brokers).toEqual([advertised]);
     expect(services.kafka.healthcheck?.test.join(' ')).toContain('localhost:9092');
   });
 
@@ -114,10 +114,10 @@ describe('modewatch.example.yaml', () => {
   it('listens on 9471 and sends alerts to the compose Alertmanager', () => {
     const cfg = yamlFile<{
       http: { listen: string };
-      alerting: { sinks: { kind: string; urls?: string[] }[] };
+      alerts: { sinks: { type: string; urls?: string[] }[] };
     }>(join(DEPLOY, 'modewatch.example.yaml'));
     expect(hostPort(cfg.http.listen).port).toBe(PORT);
-    const am = cfg.alerting.sinks.find((s) => s.kind === 'alertmanager')!;
+    const am = cfg.alerts.sinks.find((s) => s.type === 'alertmanager')!;
     const u = hostPort(am.urls![0]);
     expect(services[u.host]).toBeDefined();
   });
