@@ -2,7 +2,48 @@ import { describe, expect, it } from 'vitest';
 import type { AlertTransition } from '../../src/detect/alert.js';
 import { monitorConfig } from '../../src/detect/monitor-config.js';
 import { VectorStreamMonitor, type VectorMonitorState } from '../../src/detect/vector-monitor.js';
-import { FAST, SLOW, simulate2d, type Cluster } from './vector-sim.js';
+import { Random } from '../../src/math/random.js';
+
+// ---- invented 2-D streams: (latency-like ms, size-like bytes) from correlated Gaussian clusters ----
+
+interface Cluster {
+  weight: number;
+  mean: [number, number];
+  sd: [number, number];
+  rho: number;
+}
+
+const FAST: Cluster = { weight: 0.7, mean: [40, 2000], sd: [5, 300], rho: 0.3 };
+const SLOW: Cluster = { weight: 0.3, mean: [180, 8000], sd: [25, 1200], rho: -0.2 };
+
+/** Calls `emit(x, i)` for n events; clusters(i) gives the mixture in force at event i; outliers at rate `outliers`. */
+function simulate2d(n: number, seed: number, clusters: (i: number) => Cluster[], emit: (x: Float64Array, i: number) => void, outliers = 0): void {
+  const rng = new Random(seed);
+  const x = new Float64Array(2);
+  for (let i = 0; i < n; i++) {
+    if (outliers > 0 && rng.uniform() < outliers) {
+      x[0] = 1 + 5000 * rng.uniform();
+      x[1] = 1 + 100_000 * rng.uniform();
+      emit(x, i);
+      continue;
+    }
+    const cs = clusters(i);
+    let u = rng.uniform();
+    let c = cs[cs.length - 1];
+    for (const k of cs) {
+      u -= k.weight;
+      if (u < 0) {
+        c = k;
+        break;
+      }
+    }
+    const a = rng.normal();
+    const b = rng.normal();
+    x[0] = c.mean[0] + c.sd[0] * a;
+    x[1] = c.mean[1] + c.sd[1] * (c.rho * a + Math.sqrt(1 - c.rho * c.rho) * b);
+    emit(x, i);
+  }
+}
 
 /** Invented scenarios: (latency ms, size bytes) from two clusters; the change happens at event CHANGE. */
 const CHANGE = 20_000;
@@ -19,7 +60,12 @@ const SCENARIOS: Record<string, (i: number) => Cluster[]> = {
 function run(name: string, events: number, seed = 1, outliers = 0) {
   const transitions: AlertTransition[] = [];
   const monitor = new VectorStreamMonitor('req', monitorConfig(), (t) => transitions.push(t));
-  simulate2d(events, seed, SCENARIOS[name], (x, i) => expect(monitor.observeVector(x, 2, 1.7e12 + 10 * i, i)).toBe(null), outliers);
+  let rejected = 0;
+  simulate2d(events, seed, SCENARIOS[name], (x, i) => {
+    if (monitor.observeVector(x, 2, 1.7e12 + 10 * i, i) !== null) rejected++;
+  }, outliers);
+  expect(rejected).toBe(0);
+  expect(monitor.eventsAccepted).toBe(events);
   return { transitions, monitor };
 }
 
@@ -118,6 +164,31 @@ describe('vector stream monitor on simulated 2-D streams', () => {
     const first = new VectorStreamMonitor('req', monitorConfig(), () => {});
     expect(first.observeVector(x, 0, 0, 0)).toBe('wrong_dimension');
     expect(first.dimension).toBe(0);
+  });
+
+  it('works in 4 dimensions: silent while stationary, then a new mode emerges', () => {
+    // Invented 4-D stream: two clusters with a shared correlation; a 2 % cluster appears at CHANGE.
+    const rng = new Random(9);
+    const transitions: AlertTransition[] = [];
+    const m = new VectorStreamMonitor('req4', monitorConfig(), (t) => transitions.push(t));
+    const x = new Float64Array(4);
+    const centres = [
+      [10, 20, 30, 40],
+      [30, 10, 50, 20],
+      [60, 60, 0, 0],
+    ];
+    for (let i = 0; i < 26_000; i++) {
+      const u = rng.uniform();
+      const c = i >= CHANGE && u < 0.02 ? 2 : u < 0.6 ? 0 : 1;
+      const common = rng.normal();
+      for (let a = 0; a < 4; a++) x[a] = centres[c][a] + 2 * (0.6 * common + 0.8 * rng.normal());
+      expect(m.observeVector(x, 4, i, i)).toBe(null);
+    }
+    const a = firstFiring(transitions);
+    expect(a.kind).toBe('mode_emerged');
+    expect(a.offset - CHANGE).toBeLessThan(1500);
+    const born = m.vectorViews(m.current).find((c) => c.id === a.evidence.componentId);
+    expect(born?.mean.map((v) => Math.round(v / 5) * 5)).toEqual([60, 60, 0, 0]);
   });
 
   it('checkpoint and resume at several points continue bit for bit', () => {
