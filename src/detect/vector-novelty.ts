@@ -147,7 +147,8 @@ export class VectorNovelty {
     for (let s = 0, tried = 0; s < this.size && tried < SEEDS * RADII.length; s++) {
       const seed = this.slot(s);
       if (!(this.at[seed] > now - window)) continue;
-      for (const radius of RADII) {
+      for (let ri = 0; ri < RADII.length; ri++) {
+      const radius = RADII[ri];
       tried++;
       // Members: live events within `radius` units of the seed, then two trimming passes.
       let count = 0;
