@@ -148,43 +148,43 @@ export class VectorNovelty {
       const seed = this.slot(s);
       if (!(this.at[seed] > now - window)) continue;
       for (let ri = 0; ri < RADII.length; ri++) {
-      const radius = RADII[ri];
-      tried++;
-      // Members: live events within `radius` units of the seed, then two trimming passes.
-      let count = 0;
-      for (let t = 0; t < this.size; t++) {
-        const i = this.slot(t);
-        let inside = 0;
-        if (this.at[i] > now - window) {
-          let q = 0;
-          for (let a = 0; a < d; a++) {
-            const v = this.z[i * d + a] - this.z[seed * d + a];
-            q += v * v;
-          }
-          inside = q < radius * radius ? 1 : 0;
-        }
-        this.member[i] = inside;
-        count += inside;
-      }
-      if (count < minCount) continue;
-      for (let pass = 0; pass < 2 && count >= minCount; pass++) {
-        if (!this.fitMembers()) break;
-        count = 0;
+        const radius = RADII[ri];
+        tried++;
+        // Members: live events within `radius` units of the seed, then two trimming passes.
+        let count = 0;
         for (let t = 0; t < this.size; t++) {
           const i = this.slot(t);
           let inside = 0;
-          if (this.at[i] > now - window && this.mahal(i) < cut) inside = 1;
+          if (this.at[i] > now - window) {
+            let q = 0;
+            for (let a = 0; a < d; a++) {
+              const v = this.z[i * d + a] - this.z[seed * d + a];
+              q += v * v;
+            }
+            inside = q < radius * radius ? 1 : 0;
+          }
           this.member[i] = inside;
           count += inside;
         }
-      }
-      if (count < minCount || !this.fitMembers()) continue;
-      const stat = this.llr(count, n) - penalty;
-      if (stat > best) {
-        best = stat;
-        bestSeed = seed;
-        bestRadius = radius;
-      }
+        if (count < minCount) continue;
+        for (let pass = 0; pass < 2 && count >= minCount; pass++) {
+          if (!this.fitMembers()) break;
+          count = 0;
+          for (let t = 0; t < this.size; t++) {
+            const i = this.slot(t);
+            let inside = 0;
+            if (this.at[i] > now - window && this.mahal(i) < cut) inside = 1;
+            this.member[i] = inside;
+            count += inside;
+          }
+        }
+        if (count < minCount || !this.fitMembers()) continue;
+        const stat = this.llr(count, n) - penalty;
+        if (stat > best) {
+          best = stat;
+          bestSeed = seed;
+          bestRadius = radius;
+        }
       }
     }
     if (bestSeed < 0) {
