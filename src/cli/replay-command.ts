@@ -3,7 +3,9 @@ import type { Argv, CommandModule } from 'yargs';
 import type { ScaleName } from '../math/scale.js';
 import { UsageError } from './usage-error.js';
 import { defaultResolver, runReplay, writeSummary } from './replay.js';
+import { stat } from 'node:fs/promises';
 import { loadStreamSettings } from './config-loading.js';
+import { createProgress } from './progress.js';
 
 interface ReplayArgs {
   files: string[];
@@ -28,7 +30,22 @@ export const replayCommand: CommandModule<object, ReplayArgs> = {
   handler: async (args) => {
     const resolve = args.config !== undefined ? await loadStreamSettings(args.config, args.scale) : defaultResolver(args.scale);
     if (!(args['max-streams'] >= 1)) throw new UsageError(`--max-streams must be >= 1, got ${args['max-streams']}`);
-    const summary = await runReplay({ files: args.files, resolve, scale: args.scale, format: args.format, maxStreams: args['max-streams'] }, process.stdout);
+    let total = 0;
+    for (const f of args.files) {
+      if (f === '-') continue;
+      try {
+        total += (await stat(f)).size;
+      } catch {
+        throw new UsageError(`cannot read ${f}: no such file`);
+      }
+    }
+    // Shown only when stderr is a terminal; quiet in pipes and logs.
+    const progress = createProgress({ label: `replaying ${args.files.length} file(s)`, unit: 'bytes', total: total > 0 ? total : undefined });
+    const summary = await runReplay(
+      { files: args.files, resolve, scale: args.scale, format: args.format, maxStreams: args['max-streams'], onProgress: (b) => progress.update(b) },
+      process.stdout,
+    );
+    progress.finish();
     await writeSummary(summary, args.summary, process.stderr);
   },
 };

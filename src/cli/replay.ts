@@ -20,8 +20,8 @@ export interface ReplayOptions {
   scale?: ScaleName | 'auto';
   format?: RecordFormat;
   maxStreams?: number;
-  /** Called now and then with the lines read so far (progress display). */
-  onProgress?: (lines: number) => void;
+  /** Called after each chunk read with the characters (bytes, for ASCII files) read so far over all files. */
+  onProgress?: (bytesRead: number) => void;
 }
 
 export interface ReplaySummary {
@@ -107,10 +107,11 @@ export async function runReplay(opts: ReplayOptions, out: Writable): Promise<Rep
   });
   let base = 0;
   let records = 0;
+  let bytesDone = 0;
   for (let i = 0; i < opts.files.length; i++) {
     currentFile = opts.files[i];
     const lineBase = base;
-    let sinceProgress = 0;
+    const bytesBase = bytesDone;
     const counts = await decodeFile(
       currentFile,
       i,
@@ -118,19 +119,20 @@ export async function runReplay(opts: ReplayOptions, out: Writable): Promise<Rep
         slot.offset += lineBase;
         registry.observe(slot);
         if (pendingText.length > 0) flush();
-        if (++sinceProgress === 65536) {
-          sinceProgress = 0;
-          opts.onProgress?.(records + slot.offset - lineBase);
-        }
       },
       (reason) => registry.reject(reason),
-      { format: opts.format },
+      {
+        format: opts.format,
+        onChunk: (chars) => {
+          bytesDone = bytesBase + chars;
+          opts.onProgress?.(bytesDone);
+        },
+      },
     );
     base += counts.lines;
     records += counts.lines;
   }
   flush();
-  opts.onProgress?.(records);
 
   function flush(): void {
     if (pendingText.length === 0) return;

@@ -185,7 +185,13 @@ export async function decodeFile(
   partitionIndex: number,
   onEvent: (event: EventSlot) => void,
   onReject: (reason: DecodeRejection, offset: number) => void,
-  options: { format?: RecordFormat; fromOffset?: number; lineReader?: LineReaderOptions } = {},
+  options: {
+    format?: RecordFormat;
+    fromOffset?: number;
+    lineReader?: LineReaderOptions;
+    /** After each chunk: characters of whole lines read so far (bytes, for ASCII files), for a progress display. */
+    onChunk?: (charsRead: number) => void;
+  } = {},
 ): Promise<DecodeFileCounts> {
   await checkPaths([path]);
   const slot = new EventSlot();
@@ -193,6 +199,7 @@ export async function decodeFile(
   const from = options.fromOffset ?? 0;
   const counts: DecodeFileCounts = { lines: 0, accepted: 0, rejected: 0, format: null };
   let decoder: RangeDecoder | null = null;
+  let chars = 0;
   for await (const c of readLineChunks(path, options.lineReader)) {
     let k = 0;
     if (decoder === null) {
@@ -219,6 +226,8 @@ export async function decodeFile(
       }
     }
     counts.lines += c.count;
+    chars += c.text.length + c.count;
+    options.onChunk?.(chars);
   }
   return counts;
 }
