@@ -8,7 +8,7 @@ import type { AlertTransition } from '../src/detect/alert.js';
 import { HealthState, splitPartitionName } from '../src/export/daemon-health.js';
 import { REJECTION_REASONS } from '../src/export/daemon-metrics.js';
 import { METRICS } from '../src/export/metric-names.js';
-import { renderModelMetrics } from '../src/export/model-exposition.js';
+import { renderModelMetrics, renderModelMetricsBuffer, renderModelMetricsChunked } from '../src/export/model-exposition.js';
 import { MetricsExporter } from '../src/export/render-metrics.js';
 import { escapeLabelValue, formatValue } from '../src/export/text-format.js';
 import { EventSlot } from '../src/ingest/event.js';
@@ -130,7 +130,7 @@ describe('text format pieces', () => {
 
 describe('model exposition', () => {
   const rng = new Random(11);
-  const weird = 'lat"x\\y\nz';
+  const weird = 'lat"x\\y\nz Zürich ✓';
   const reg = registry({ [weird]: 'milliseconds', sizes: 'kilobytes', plain: '', odd: 'requests', proto: 'constructor' });
   feed(reg, weird, latency, 1500, rng);
   feed(reg, 'sizes', latency, 1500, rng);
@@ -202,6 +202,17 @@ describe('model exposition', () => {
     expect(only(p, METRICS.componentWeight, { stream: 'booting' })).toHaveLength(0);
     expect(only(p, METRICS.streamEvents, { stream: 'booting' })[0].value).toBe(50);
     expect(only(p, METRICS.streamLastEventTs, { stream: 'plain' })[0].value).toBeCloseTo((1.7e12 + 1499 * 10) / 1000, 3);
+  });
+
+  it('writes the same bytes in chunks between turns of the event loop, one render for concurrent scrapes', async () => {
+    const whole = renderModelMetricsBuffer(reg);
+    const a = renderModelMetricsChunked(reg, 2);
+    const b = renderModelMetricsChunked(reg, 2);
+    expect(b).toBe(a); // shared while in flight
+    const during = renderModelMetrics(reg); // a one-go render meanwhile uses its own writers
+    expect((await a).equals(whole)).toBe(true);
+    expect(during).toBe(whole.toString('utf8'));
+    expect((await renderModelMetricsChunked(reg, 1)).equals(whole)).toBe(true);
   });
 
   it('drops the series of a stream that is removed', () => {

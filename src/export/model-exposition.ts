@@ -1,8 +1,9 @@
 /**
  * The per-stream model metrics, written straight into the Prometheus text exposition format
- * (0.0.4) from the registry at scrape time. String building instead of prom-client: with tens
- * of thousands of streams a scrape has 100k+ series, and prom-client's per-label-set objects and
- * hashing cost several times more (src/bench/scrape-bench.ts measures the ratio).
+ * (0.0.4) from the registry at scrape time, as bytes into reused per-family buffers. Not through
+ * prom-client: with tens of thousands of streams a scrape has 100k+ series, and prom-client's
+ * per-label-set objects and hashing cost several times more (src/bench/scrape-bench.ts measures
+ * the ratio).
  *
  * - Each family is written as one group (HELP, TYPE, then all its samples), as the format and
  *   `promtool check metrics` require; empty families are left out.
@@ -15,7 +16,7 @@
  */
 import type { ScaleName } from '../math/scale.js';
 import type { StreamMonitor } from '../detect/stream-monitor.js';
-import type { StreamRegistry } from '../streams/stream-registry.js';
+import type { StreamEntry, StreamRegistry } from '../streams/stream-registry.js';
 import { METRICS, UNIT_FACTORS } from './metric-names.js';
 import { escapeLabelValue, familyHeader, formatValue } from './text-format.js';
 
@@ -57,81 +58,215 @@ function unitSuffixHelp(base: Base): string {
   return base === 'bare' ? ', in the units of the stream.' : ` (converted from the unit of the stream), in ${base}.`;
 }
 
-/** Writes the model families of every stream in the registry. */
-export function renderModelMetrics(registry: StreamRegistry): string {
-  let weight = '';
-  let refWeight = '';
-  const loc: Record<Base, string> = { bare: '', seconds: '', bytes: '' };
-  const spr: Record<Base, string> = { bare: '', seconds: '', bytes: '' };
-  let components = '';
-  let shift = '';
-  let loglik = '';
-  let alert = '';
-  let events = '';
-  let lastTs = '';
-  const W = METRICS.componentWeight;
-  const RW = METRICS.referenceWeight;
-  const locName: Record<Base, string> = {
-    bare: METRICS.componentLocation,
-    seconds: `${METRICS.componentLocation}_seconds`,
-    bytes: `${METRICS.componentLocation}_bytes`,
-  };
-  const sprName: Record<Base, string> = {
-    bare: METRICS.componentSpread,
-    seconds: `${METRICS.componentSpread}_seconds`,
-    bytes: `${METRICS.componentSpread}_bytes`,
-  };
+/**
+ * One family's samples as bytes. Appending bytes to a reused, growing buffer costs a third of
+ * building the same text with string concatenation (and skips flattening and UTF-8 encoding a
+ * 10+ MB rope at the end); src/bench/scrape-bench.ts measures it.
+ */
+class FamilyWriter {
+  buf: Buffer;
+  len = 0;
+  readonly name: Buffer;
 
-  for (const e of registry.streams()) {
-    const m = e.monitor;
-    const s = `{stream="${escapeLabelValue(e.name)}"`;
-    const bu = baseUnitOf(m.config.unit);
-    const base: Base = bu === null ? 'bare' : bu.base;
-    const factor = bu === null ? 1 : bu.factor;
-    const cur = m.current;
-    const ref = m.reference;
-    const scale = m.scale;
-    let l = '';
-    let p = '';
-    if (cur !== null) {
-      for (let j = 0; j < cur.k; j++) {
-        const c = `${s},component="${cur.id(j)}"} `;
-        weight += `${W}${c}${formatValue(cur.weight(j))}\n`;
-        const mu = cur.mean(j);
-        const sd = cur.sd(j);
-        l += `${locName[base]}${c}${formatValue(factor * locationOf(scale, mu))}\n`;
-        p += `${sprName[base]}${c}${formatValue(factor * spreadOf(scale, mu, sd))}\n`;
-      }
-      loc[base] += l;
-      spr[base] += p;
-    }
-    if (ref !== null) {
-      for (let j = 0; j < ref.k; j++) refWeight += `${RW}${s},component="${ref.id(j)}"} ${formatValue(ref.weight(j))}\n`;
-    }
-    components += `${METRICS.streamComponents}${s}} ${cur === null ? 0 : cur.k}\n`;
-    shift += `${METRICS.streamShiftScore}${s}} ${formatValue(m.shiftScore())}\n`;
-    const ll = readLogLikelihood(m);
-    if (ll !== null) loglik += `${METRICS.streamLogLikelihood}${s}} ${formatValue(ll)}\n`;
-    alert += alertLines(m, s);
-    events += `${METRICS.streamEvents}${s}} ${m.eventsAccepted}\n`;
-    lastTs += `${METRICS.streamLastEventTs}${s}} ${formatValue(m.lastEventTs / 1000)}\n`;
+  constructor(
+    readonly family: string,
+    readonly type: 'gauge' | 'counter',
+    readonly help: string,
+  ) {
+    this.name = Buffer.from(family, 'latin1');
+    this.buf = Buffer.allocUnsafe(4096);
   }
 
-  let out = '';
-  const put = (name: string, type: 'gauge' | 'counter', help: string, body: string) => {
-    if (body !== '') out += familyHeader(name, type, help) + body;
+  /** Start a sample line: name and the stream label (`{stream="..."`, unclosed). */
+  begin(streamLabel: Buffer, room: number): void {
+    const need = this.len + this.name.length + streamLabel.length + room;
+    if (need > this.buf.length) {
+      const next = Buffer.allocUnsafe(Math.max(need, 2 * this.buf.length));
+      this.buf.copy(next, 0, 0, this.len);
+      this.buf = next;
+    }
+    this.buf.set(this.name, this.len);
+    this.len += this.name.length;
+    this.buf.set(streamLabel, this.len);
+    this.len += streamLabel.length;
+  }
+
+  /** Append ASCII text (label syntax, numbers); begin() reserved the room. */
+  ascii(s: string): void {
+    const b = this.buf;
+    let o = this.len;
+    for (let i = 0; i < s.length; i++) b[o++] = s.charCodeAt(i);
+    this.len = o;
+  }
+
+  /** A line for a stream: `name{stream="..."} value`. */
+  stream(label: Buffer, value: string): void {
+    this.begin(label, value.length + 4);
+    this.ascii('} ');
+    this.ascii(value);
+    this.buf[this.len++] = 10;
+  }
+
+  /** A line for a component: `name{stream="...",component="id"} value`. */
+  component(label: Buffer, id: number, value: string): void {
+    this.begin(label, value.length + 40);
+    this.ascii(',component="');
+    this.ascii(String(id));
+    this.ascii('"} ');
+    this.ascii(value);
+    this.buf[this.len++] = 10;
+  }
+
+  /** Raw ASCII after the stream label, then a newline (for labels beyond stream/component). */
+  raw(label: Buffer, rest: string): void {
+    this.begin(label, rest.length + 2);
+    this.ascii(rest);
+    this.buf[this.len++] = 10;
+  }
+}
+
+/** The model families, in the order they are written. Writers are reused between scrapes. */
+class ModelWriters {
+  readonly weight = new FamilyWriter(METRICS.componentWeight, 'gauge', HELP.weight);
+  readonly refWeight = new FamilyWriter(METRICS.referenceWeight, 'gauge', HELP.refWeight);
+  readonly loc: Record<Base, FamilyWriter> = {
+    bare: new FamilyWriter(METRICS.componentLocation, 'gauge', HELP.location + unitSuffixHelp('bare')),
+    seconds: new FamilyWriter(`${METRICS.componentLocation}_seconds`, 'gauge', HELP.location + unitSuffixHelp('seconds')),
+    bytes: new FamilyWriter(`${METRICS.componentLocation}_bytes`, 'gauge', HELP.location + unitSuffixHelp('bytes')),
   };
-  put(W, 'gauge', HELP.weight, weight);
-  put(RW, 'gauge', HELP.refWeight, refWeight);
-  for (const b of ['bare', 'seconds', 'bytes'] as const) put(locName[b], 'gauge', HELP.location + unitSuffixHelp(b), loc[b]);
-  for (const b of ['bare', 'seconds', 'bytes'] as const) put(sprName[b], 'gauge', HELP.spread + unitSuffixHelp(b), spr[b]);
-  put(METRICS.streamComponents, 'gauge', HELP.components, components);
-  put(METRICS.streamShiftScore, 'gauge', HELP.shift, shift);
-  put(METRICS.streamLogLikelihood, 'gauge', HELP.loglik, loglik);
-  put(METRICS.alertActive, 'gauge', HELP.alert, alert);
-  put(METRICS.streamEvents, 'counter', HELP.events, events);
-  put(METRICS.streamLastEventTs, 'gauge', HELP.lastTs, lastTs);
-  return out;
+  readonly spr: Record<Base, FamilyWriter> = {
+    bare: new FamilyWriter(METRICS.componentSpread, 'gauge', HELP.spread + unitSuffixHelp('bare')),
+    seconds: new FamilyWriter(`${METRICS.componentSpread}_seconds`, 'gauge', HELP.spread + unitSuffixHelp('seconds')),
+    bytes: new FamilyWriter(`${METRICS.componentSpread}_bytes`, 'gauge', HELP.spread + unitSuffixHelp('bytes')),
+  };
+  readonly components = new FamilyWriter(METRICS.streamComponents, 'gauge', HELP.components);
+  readonly shift = new FamilyWriter(METRICS.streamShiftScore, 'gauge', HELP.shift);
+  readonly loglik = new FamilyWriter(METRICS.streamLogLikelihood, 'gauge', HELP.loglik);
+  readonly alert = new FamilyWriter(METRICS.alertActive, 'gauge', HELP.alert);
+  readonly events = new FamilyWriter(METRICS.streamEvents, 'counter', HELP.events);
+  readonly lastTs = new FamilyWriter(METRICS.streamLastEventTs, 'gauge', HELP.lastTs);
+
+  all(): FamilyWriter[] {
+    return [
+      this.weight,
+      this.refWeight,
+      this.loc.bare,
+      this.loc.seconds,
+      this.loc.bytes,
+      this.spr.bare,
+      this.spr.seconds,
+      this.spr.bytes,
+      this.components,
+      this.shift,
+      this.loglik,
+      this.alert,
+      this.events,
+      this.lastTs,
+    ];
+  }
+}
+
+/** `{stream="<escaped name>"` as UTF-8 bytes, made once per stream entry. */
+const streamLabels = new WeakMap<StreamEntry, Buffer>();
+function streamLabel(e: StreamEntry): Buffer {
+  let b = streamLabels.get(e);
+  if (b === undefined) {
+    b = Buffer.from(`{stream="${escapeLabelValue(e.name)}"`, 'utf8');
+    streamLabels.set(e, b);
+  }
+  return b;
+}
+
+const writersByRegistry = new WeakMap<StreamRegistry, ModelWriters>();
+/** A chunked render in progress per registry: concurrent scrapes share it (they would share the writers). */
+const inFlight = new WeakMap<StreamRegistry, Promise<Buffer>>();
+
+function writersFor(registry: StreamRegistry): ModelWriters {
+  let w = writersByRegistry.get(registry);
+  if (w === undefined) {
+    w = new ModelWriters();
+    writersByRegistry.set(registry, w);
+  }
+  for (const f of w.all()) f.len = 0;
+  return w;
+}
+
+function writeStream(w: ModelWriters, e: StreamEntry): void {
+  const m = e.monitor;
+  const s = streamLabel(e);
+  const bu = baseUnitOf(m.config.unit);
+  const base: Base = bu === null ? 'bare' : bu.base;
+  const factor = bu === null ? 1 : bu.factor;
+  const cur = m.current;
+  const ref = m.reference;
+  const scale = m.scale;
+  if (cur !== null) {
+    const loc = w.loc[base];
+    const spr = w.spr[base];
+    for (let j = 0; j < cur.k; j++) {
+      const id = cur.id(j);
+      const mu = cur.mean(j);
+      w.weight.component(s, id, formatValue(cur.weight(j)));
+      loc.component(s, id, formatValue(factor * locationOf(scale, mu)));
+      spr.component(s, id, formatValue(factor * spreadOf(scale, mu, cur.sd(j))));
+    }
+  }
+  if (ref !== null) for (let j = 0; j < ref.k; j++) w.refWeight.component(s, ref.id(j), formatValue(ref.weight(j)));
+  w.components.stream(s, String(cur === null ? 0 : cur.k));
+  w.shift.stream(s, formatValue(m.shiftScore()));
+  const ll = readLogLikelihood(m);
+  if (ll !== null) w.loglik.stream(s, formatValue(ll));
+  writeAlerts(w.alert, m, s);
+  w.events.stream(s, String(m.eventsAccepted));
+  w.lastTs.stream(s, formatValue(m.lastEventTs / 1000));
+}
+
+function finish(w: ModelWriters): Buffer {
+  const parts: Buffer[] = [];
+  for (const f of w.all()) {
+    if (f.len === 0) continue;
+    parts.push(Buffer.from(familyHeader(f.family, f.type, f.help), 'utf8'), f.buf.subarray(0, f.len));
+  }
+  return Buffer.concat(parts);
+}
+
+/** Writes the model families of every stream in the registry, as UTF-8 bytes of the text format (in one go). */
+export function renderModelMetricsBuffer(registry: StreamRegistry): Buffer {
+  // While a chunked render holds the registry's writers, write into fresh ones.
+  const w = inFlight.has(registry) ? new ModelWriters() : writersFor(registry);
+  for (const e of registry.streams()) writeStream(w, e);
+  return finish(w);
+}
+
+/**
+ * The same bytes, written `chunk` streams at a time with a turn of the event loop between chunks,
+ * so that a scrape of tens of thousands of streams delays event processing by one chunk's time,
+ * not the whole render's. Streams are those present when the render starts; each stream's lines
+ * are written at once, so they are consistent per stream (a scrape was never an atomic snapshot
+ * across streams). Concurrent calls share one render.
+ */
+export function renderModelMetricsChunked(registry: StreamRegistry, chunk = 1000): Promise<Buffer> {
+  const running = inFlight.get(registry);
+  if (running !== undefined) return running;
+  const p = (async () => {
+    const w = writersFor(registry);
+    const entries = [...registry.streams()];
+    for (let i = 0; i < entries.length; i += chunk) {
+      if (i > 0) await new Promise<void>((r) => setImmediate(r));
+      const end = Math.min(entries.length, i + chunk);
+      for (let j = i; j < end; j++) writeStream(w, entries[j]);
+    }
+    return finish(w);
+  })();
+  inFlight.set(registry, p);
+  const clear = () => inFlight.delete(registry);
+  p.then(clear, clear);
+  return p;
+}
+
+/** The model families as text (see renderModelMetricsBuffer, which the HTTP server uses). */
+export function renderModelMetrics(registry: StreamRegistry): string {
+  return renderModelMetricsBuffer(registry).toString('utf8');
 }
 
 /** Median in stream units of a component N(mu, sd) on the model scale (summarizeComponent in math/mixture1d.ts, inlined). */
@@ -152,16 +287,14 @@ function readLogLikelihood(m: StreamMonitor): number | null {
   return typeof v === 'number' && Number.isFinite(v) ? v : null;
 }
 
-function alertLines(m: StreamMonitor, s: string): string {
+function writeAlerts(f: FamilyWriter, m: StreamMonitor, s: Buffer): void {
   const active = m.alerts();
-  if (active.length === 0) return '';
+  if (active.length === 0) return;
   // Count by (kind, state): a stream may have two alerts of one kind on different components.
   const counts = new Map<string, number>();
   for (const a of active) {
     const key = `${a.kind}",state="${a.state}`;
     counts.set(key, (counts.get(key) ?? 0) + 1);
   }
-  let out = '';
-  for (const [key, n] of counts) out += `${METRICS.alertActive}${s},kind="${key}"} ${n}\n`;
-  return out;
+  for (const [key, n] of counts) f.raw(s, `,kind="${key}"} ${n}`);
 }

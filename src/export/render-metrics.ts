@@ -6,29 +6,38 @@
 import type { StreamRegistry } from '../streams/stream-registry.js';
 import type { DaemonHealth } from './daemon-health.js';
 import { DaemonMetrics, type DaemonMetricsOptions } from './daemon-metrics.js';
-import { renderModelMetrics } from './model-exposition.js';
+import { renderModelMetricsChunked } from './model-exposition.js';
 
 /** Content type of the text format 0.0.4 (what Prometheus asks for by default besides OpenMetrics). */
 export const EXPOSITION_CONTENT_TYPE = 'text/plain; version=0.0.4; charset=utf-8';
 
 export class MetricsExporter {
   readonly daemon: DaemonMetrics;
+  /** Streams written per turn of the event loop (see renderModelMetricsChunked). */
+  readonly chunk: number;
 
   constructor(
     readonly registry: StreamRegistry,
     readonly health: DaemonHealth,
-    options: DaemonMetricsOptions = {},
+    options: DaemonMetricsOptions & { chunk?: number } = {},
   ) {
     this.daemon = new DaemonMetrics(registry, health, options);
+    this.chunk = options.chunk ?? 1000;
+  }
+
+  /** The whole body as UTF-8 bytes (what the HTTP server sends). */
+  async renderBuffer(): Promise<Buffer> {
+    const t0 = performance.now();
+    const model = await renderModelMetricsChunked(this.registry, this.chunk);
+    let daemon = await this.daemon.render();
+    if (daemon !== '' && !daemon.endsWith('\n')) daemon += '\n';
+    const body = Buffer.concat([Buffer.from(daemon, 'utf8'), model]);
+    this.daemon.lastScrapeSeconds = (performance.now() - t0) / 1000;
+    return body;
   }
 
   async render(): Promise<string> {
-    const t0 = performance.now();
-    const model = renderModelMetrics(this.registry);
-    let daemon = await this.daemon.render();
-    if (daemon !== '' && !daemon.endsWith('\n')) daemon += '\n';
-    this.daemon.lastScrapeSeconds = (performance.now() - t0) / 1000;
-    return daemon + model;
+    return (await this.renderBuffer()).toString('utf8');
   }
 }
 

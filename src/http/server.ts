@@ -127,7 +127,7 @@ export async function startHttpServer(options: HttpServerOptions): Promise<Runni
     },
     {
       pattern: /^\/metrics$/,
-      methods: { GET: async (req, res) => send(req, res, 200, EXPOSITION_CONTENT_TYPE, await exporter.render(), { 'Cache-Control': 'no-store' }) },
+      methods: { GET: async (req, res) => send(req, res, 200, EXPOSITION_CONTENT_TYPE, await exporter.renderBuffer(), { 'Cache-Control': 'no-store' }) },
     },
     { pattern: /^\/healthz$/, open: true, methods: { GET: (req, res) => text(req, res, 200, 'ok') } },
     {
