@@ -11,6 +11,7 @@ import { Mixture1D } from './mixture1d.js';
 import { Random } from './random.js';
 import { logJacobian, toModel, type ScaleName } from './scale.js';
 import { LOG_SQRT_2PI } from './normal.js';
+import { expNonPositive } from './stepwise-em1d.js';
 
 export interface BatchFitOptions {
   /** Convergence: stop when the mean log-likelihood per point changes by less than this. */
@@ -146,10 +147,9 @@ function prepare(x: ArrayLike<number>, scale: ScaleName): Prepared {
 
 function fitPrepared(p: Prepared, k: number, opts: Required<BatchFitOptions>, rng: Random): BatchFit {
   let best: { w: Float64Array; mu: Float64Array; v: Float64Array; ll: number; it: number; conv: boolean } | null = null;
-  const resp = new Float64Array(p.n * k);
   for (let r = 0; r < Math.max(1, opts.restarts); r++) {
     const init = kmeansInit(p.z, k, rng);
-    const run = runEm(p.z, k, init.w, init.mu, init.v, resp, opts);
+    const run = runEm(p.z, k, init.w, init.mu, init.v, opts);
     if (best === null || run.ll > best.ll) best = run;
     if (k === 1) break; // one component has a unique MLE
   }
@@ -228,52 +228,77 @@ function kmeansInit(z: Float64Array, k: number, rng: Random): { w: Float64Array;
   return { w, mu: centers, v };
 }
 
+/**
+ * EM iterations until the mean log-likelihood per point changes by less than tol (scikit-learn's rule).
+ * One pass over the data per iteration: the E-step accumulates the M-step's sums as it goes, so the
+ * responsibilities are never stored. Sums are taken about the current means (d = z - μ_j) — the shifted-data
+ * form of the weighted variance, free of cancellation as the means settle — and give
+ * μ'_j = μ_j + Σr·d / n_j and v'_j = Σr·d² / n_j - (Σr·d / n_j)² + regVar.
+ * The log-likelihood takes one log per chunk of points (a running product of the per-point sums, each in [1, k]).
+ */
 function runEm(
   z: Float64Array,
   k: number,
   w: Float64Array,
   mu: Float64Array,
   v: Float64Array,
-  resp: Float64Array,
   opts: Required<BatchFitOptions>,
 ): { w: Float64Array; mu: Float64Array; v: Float64Array; ll: number; it: number; conv: boolean } {
   const n = z.length;
-  const logw = new Float64Array(k);
-  const logsd = new Float64Array(k);
+  const logc = new Float64Array(k);
   const inv2v = new Float64Array(k);
-  const nk = new Float64Array(k);
+  const l = new Float64Array(k);
+  const sr = new Float64Array(k);
+  const srd = new Float64Array(k);
+  const srd2 = new Float64Array(k);
   let prevMeanLl = -Infinity;
   let ll = -Infinity;
   let it = 0;
   let conv = false;
   for (it = 1; it <= opts.maxIter; it++) {
     for (let j = 0; j < k; j++) {
-      logw[j] = Math.log(w[j]);
-      logsd[j] = 0.5 * Math.log(v[j]);
+      logc[j] = Math.log(w[j]) - 0.5 * Math.log(v[j]);
       inv2v[j] = 0.5 / v[j];
+      sr[j] = 0;
+      srd[j] = 0;
+      srd2[j] = 0;
     }
-    // E-step with log-sum-exp.
-    ll = 0;
+    // E-step with log-sum-exp, and the M-step's sums.
+    let sumMax = 0;
+    let logProd = 0;
+    let prod = 1;
     for (let i = 0; i < n; i++) {
       const zi = z[i];
       let max = -Infinity;
-      const base = i * k;
       for (let j = 0; j < k; j++) {
         const d = zi - mu[j];
-        const l = logw[j] - logsd[j] - d * d * inv2v[j];
-        resp[base + j] = l;
-        if (l > max) max = l;
+        const lj = logc[j] - d * d * inv2v[j];
+        l[j] = lj;
+        if (lj > max) max = lj;
       }
       let s = 0;
       for (let j = 0; j < k; j++) {
-        const e = Math.exp(resp[base + j] - max);
-        resp[base + j] = e;
+        const e = expNonPositive(l[j] - max);
+        l[j] = e;
         s += e;
       }
       const inv = 1 / s;
-      for (let j = 0; j < k; j++) resp[base + j] *= inv;
-      ll += max + Math.log(s) - LOG_SQRT_2PI;
+      for (let j = 0; j < k; j++) {
+        const r = l[j] * inv;
+        const d = zi - mu[j];
+        const rd = r * d;
+        sr[j] += r;
+        srd[j] += rd;
+        srd2[j] += rd * d;
+      }
+      sumMax += max;
+      prod *= s;
+      if (prod > 1e250) {
+        logProd += Math.log(prod);
+        prod = 1;
+      }
     }
+    ll = sumMax + (logProd + Math.log(prod)) - n * LOG_SQRT_2PI;
     const meanLl = ll / n;
     if (Math.abs(meanLl - prevMeanLl) < opts.tol) {
       conv = true;
@@ -281,30 +306,12 @@ function runEm(
     }
     prevMeanLl = meanLl;
     // M-step.
-    nk.fill(0);
-    mu.fill(0);
-    for (let i = 0; i < n; i++) {
-      const base = i * k;
-      for (let j = 0; j < k; j++) {
-        nk[j] += resp[base + j];
-        mu[j] += resp[base + j] * z[i];
-      }
-    }
     for (let j = 0; j < k; j++) {
-      const nj = nk[j] + 10 * Number.EPSILON;
-      mu[j] /= nj;
-      v[j] = 0;
-    }
-    for (let i = 0; i < n; i++) {
-      const base = i * k;
-      for (let j = 0; j < k; j++) {
-        const d = z[i] - mu[j];
-        v[j] += resp[base + j] * d * d;
-      }
-    }
-    for (let j = 0; j < k; j++) {
-      const nj = nk[j] + 10 * Number.EPSILON;
-      v[j] = v[j] / nj + opts.regVar;
+      const nj = sr[j] + 10 * Number.EPSILON;
+      const shift = srd[j] / nj;
+      const spread = srd2[j] / nj - shift * shift;
+      mu[j] += shift;
+      v[j] = (spread > 0 ? spread : 0) + opts.regVar;
       w[j] = nj / n;
     }
   }
