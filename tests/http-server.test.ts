@@ -242,6 +242,10 @@ describe('web configuration', () => {
     const page = await (await fetch(`${server.url}/`)).text();
     expect(page).toContain('src="/modewatch/assets/app.js"');
     expect((await fetch(new URL('/metrics', server.url))).status).toBe(404);
+    // The page's origin behind the proxy may re-baseline; another origin may not.
+    const rb = `${server.url}/api/streams/sizes/rebaseline`;
+    expect((await fetch(rb, { method: 'POST', headers: { Origin: 'https://ops.example' } })).status).toBe(202);
+    expect((await fetch(rb, { method: 'POST', headers: { Origin: 'https://evil.example' } })).status).toBe(403);
     expect(streamPageUrl('https://ops.example/modewatch/', ODD)).toBe('https://ops.example/modewatch/streams/checkout%2Flatency%20%3F%23%25%22x');
   });
 });

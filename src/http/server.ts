@@ -78,6 +78,7 @@ export async function startHttpServer(options: HttpServerOptions): Promise<Runni
   const tls = webConfig?.tls;
   const extraHeaders = webConfig?.headers ?? {};
   const html = pageHtml(base);
+  const externalOrigin = options.externalUrl ? new URL(options.externalUrl).origin : null;
 
   const send = async (req: IncomingMessage, res: ServerResponse, status: number, type: string, body: string | Buffer, extra: Record<string, string> = {}) => {
     let payload = typeof body === 'string' ? Buffer.from(body, 'utf8') : body;
@@ -180,7 +181,8 @@ export async function startHttpServer(options: HttpServerOptions): Promise<Runni
         POST: async (req, res, [name]) => {
           // A browser sends Origin on cross-site POSTs: refuse those, so a page elsewhere cannot use a logged-in operator's credentials.
           const origin = req.headers.origin;
-          if (origin !== undefined && origin !== 'null' && !sameHost(origin, req.headers.host)) {
+          // Behind a proxy that rewrites Host, the external URL's origin is the page's origin.
+          if (origin !== undefined && origin !== 'null' && !sameHost(origin, req.headers.host) && origin !== externalOrigin) {
             return json(req, res, 403, { error: 'cross-origin request refused' });
           }
           if (origin === 'null') return json(req, res, 403, { error: 'cross-origin request refused' });
