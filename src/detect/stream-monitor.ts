@@ -24,6 +24,9 @@ import { checkValue, toModel, type ScaleName } from '../math/scale.js';
 import { OnlineMixture1D } from '../math/stepwise-em1d.js';
 import type { AlertEvidence, AlertKind, ComponentView } from './alert.js';
 import { AlertBook, type ActiveAlert, type TransitionListener } from './alert-book.js';
+import { fmt, pct } from './evidence-text.js';
+import { SurpriseTracker } from './surprise.js';
+import { C_DN_A, C_DN_B, C_DN_LB, C_UP_A, C_UP_B, C_UP_LB, C_VA_A, C_VA_B, C_VA_LB, WEIGHT_CONSTS, setWeightAlternatives } from './weight-alternatives.js';
 import { CusumBank } from './cusum-bank.js';
 import type { MonitorConfig } from './monitor-config.js';
 import { NoveltyGrid } from './novelty-grid.js';
@@ -38,18 +41,6 @@ const PER_COMPONENT = 5;
 const STAT_NAMES = ['cusum_weight_up', 'cusum_weight_down', 'cusum_weight_vanish', 'cusum_location_up', 'cusum_location_down'];
 const STAT_KINDS: AlertKind[] = ['weight_shift', 'weight_shift', 'mode_vanished', 'location_shift', 'location_shift'];
 
-/** Per reference component: ratios a = w'/w and b = (1-w')/(1-w) for the three weight alternatives. */
-const C_UP_A = 0;
-const C_UP_B = 1;
-const C_DN_A = 2;
-const C_DN_B = 3;
-const C_VA_A = 4;
-const C_VA_B = 5;
-/** ln b of each alternative: the ratio for an event that is plainly another component's. */
-const C_UP_LB = 6;
-const C_DN_LB = 7;
-const C_VA_LB = 8;
-const CONSTS = 9;
 
 /** Alert sources that are not a CUSUM index. */
 const SOURCE_FIT = -1;
@@ -79,9 +70,7 @@ export class StreamMonitor {
   private readonly consts: Float64Array;
   /** Per reference component, a short moving average of its responsibility: what its weight is right now. */
   private readonly recentShare: Float64Array;
-  private surpriseMean = 0;
-  private surpriseVar = 1;
-  private surpriseCount = 0;
+  private readonly surprise = new SurpriseTracker();
   private accepted = 0;
   private armedAt = 0;
   private lastTs = 0;
@@ -95,7 +84,7 @@ export class StreamMonitor {
     this.scaleName = config.scale === 'auto' ? 'identity' : config.scale;
     this.shifts = new CusumBank(config.capacity * PER_COMPONENT);
     this.owned = new Uint8Array(config.capacity * PER_COMPONENT);
-    this.consts = new Float64Array(config.capacity * CONSTS);
+    this.consts = new Float64Array(config.capacity * WEIGHT_CONSTS);
     this.recentShare = new Float64Array(config.capacity);
     this.book = new AlertBook(stream, listener);
     this.boot = new Float64Array(config.bootstrapEvents);
@@ -164,7 +153,7 @@ export class StreamMonitor {
     else this.learnStructure(y, offset, ts);
 
     if (quiet && this.config.known === null) ref.learn(ts);
-    if (quiet) this.learnSurprise(surprise);
+    if (quiet) this.surprise.learn(surprise, this.config.referenceWindow);
     cur.learn(ts);
     if (this.accepted % HOUSEKEEPING_EVERY === 0) this.housekeeping(ts, offset, quiet);
     return null;
@@ -193,7 +182,7 @@ export class StreamMonitor {
     for (let j = 0; j < k; j++) {
       const r = ref.responsibility(j);
       share[j] += RECENT_GAIN * (r - share[j]);
-      const c = j * CONSTS;
+      const c = j * WEIGHT_CONSTS;
       const base = j * PER_COMPONENT;
       let lz = (lambda * (y - ref.mean(j))) / ref.sd(j);
       if (r < 1e-12 && rG > 1 - 1e-9 && lz < 13 && lz > -13) {
@@ -227,10 +216,7 @@ export class StreamMonitor {
       );
     }
     // Fit: standardised surprise, clipped so one wild event cannot decide alone.
-    let z = (surprise - this.surpriseMean) / Math.sqrt(this.surpriseVar);
-    if (z > FIT_CLIP) z = FIT_CLIP;
-    else if (z < -FIT_CLIP) z = -FIT_CLIP;
-    const fitStat = this.fit.step(0, z - FIT_SLACK, offset, ts);
+    const fitStat = this.fit.step(0, this.surprise.standardized(surprise, FIT_CLIP) - FIT_SLACK, offset, ts);
     if (fitStat >= cfg.fitThreshold && this.fitOwnerless()) this.openFit(ts);
 
     const bin = this.grid.step(y, offset, ts, h);
@@ -527,33 +513,10 @@ export class StreamMonitor {
     const ref = this.ref as OnlineMixture1D;
     const cfg = this.config;
     for (let j = 0; j < ref.k; j++) {
-      const w = Math.min(Math.max(ref.weight(j), 1e-9), 1 - 1e-9);
-      const delta = Math.max(cfg.weightShiftAbsolute, cfg.weightShiftRelative * Math.min(w, 1 - w));
-      const up = Math.min(w + delta, 0.5 * (w + 1));
-      const down = Math.max(w - delta, 0.5 * w);
-      const van = w * cfg.vanishFraction;
-      const c = j * CONSTS;
-      this.consts[c + C_UP_A] = up / w;
-      this.consts[c + C_UP_B] = (1 - up) / (1 - w);
-      this.consts[c + C_DN_A] = down / w;
-      this.consts[c + C_DN_B] = (1 - down) / (1 - w);
-      this.consts[c + C_VA_A] = van / w;
-      this.consts[c + C_VA_B] = (1 - van) / (1 - w);
-      this.consts[c + C_UP_LB] = Math.log(this.consts[c + C_UP_B]);
-      this.consts[c + C_DN_LB] = Math.log(this.consts[c + C_DN_B]);
-      this.consts[c + C_VA_LB] = Math.log(this.consts[c + C_VA_B]);
+      setWeightAlternatives(this.consts, j * WEIGHT_CONSTS, ref.weight(j), cfg);
     }
   }
 
-  /** Running mean and variance of the surprise under the reference, learned while quiet. */
-  private learnSurprise(s: number): void {
-    if (!Number.isFinite(s)) return;
-    this.surpriseCount++;
-    const g = Math.max(1 / this.surpriseCount, 1 / this.config.referenceWindow);
-    const d = s - this.surpriseMean;
-    this.surpriseMean += g * d;
-    this.surpriseVar = Math.max((1 - g) * (this.surpriseVar + g * d * d), 1e-6);
-  }
 
   private housekeeping(ts: number, offset: number, quiet: boolean): void {
     const cfg = this.config;
@@ -627,9 +590,9 @@ export class StreamMonitor {
       grid: this.grid.exportState(),
       consts: Array.from(this.consts),
       recentShare: Array.from(this.recentShare),
-      surpriseMean: this.surpriseMean,
-      surpriseVar: this.surpriseVar,
-      surpriseCount: this.surpriseCount,
+      surpriseMean: this.surprise.mean,
+      surpriseVar: this.surprise.variance,
+      surpriseCount: this.surprise.count,
       accepted: this.accepted,
       armedAt: this.armedAt,
       lastTs: this.lastTs,
@@ -658,9 +621,9 @@ export class StreamMonitor {
     m.grid.importState(s.grid);
     m.consts.set(s.consts);
     m.recentShare.set(s.recentShare);
-    m.surpriseMean = s.surpriseMean;
-    m.surpriseVar = s.surpriseVar;
-    m.surpriseCount = s.surpriseCount;
+    m.surprise.mean = s.surpriseMean;
+    m.surprise.variance = s.surpriseVar;
+    m.surprise.count = s.surpriseCount;
     m.accepted = s.accepted;
     m.armedAt = s.armedAt;
     m.lastTs = s.lastTs;
@@ -696,10 +659,4 @@ export interface MonitorState {
   alerts: ActiveAlert[];
 }
 
-function pct(w: number): string {
-  return `${(100 * w).toFixed(1)} %`;
-}
 
-function fmt(x: number): string {
-  return Math.abs(x) >= 1e5 || (Math.abs(x) < 1e-3 && x !== 0) ? x.toExponential(3) : Number(x.toPrecision(4)).toString();
-}

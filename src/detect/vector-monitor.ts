@@ -36,6 +36,9 @@
 import { MV_MAX_DIM, MvMixture, OnlineMvMixture, mvToJSON, onlineMvFromJSON, selectMvMixture, type OnlineMvDocument } from '../math/mv/index.js';
 import type { AlertEvidence, AlertKind, ComponentView } from './alert.js';
 import { AlertBook, type ActiveAlert, type TransitionListener } from './alert-book.js';
+import { fmt, pct } from './evidence-text.js';
+import { SurpriseTracker } from './surprise.js';
+import { C_DN_A, C_DN_B, C_DN_LB, C_UP_A, C_UP_B, C_UP_LB, C_VA_A, C_VA_B, C_VA_LB, WEIGHT_CONSTS, setWeightAlternatives } from './weight-alternatives.js';
 import { CusumBank } from './cusum-bank.js';
 import type { MonitorConfig } from './monitor-config.js';
 import { bhattacharyya, mahalanobis2, withComponent, withMerged, withSettings, withoutComponent } from './vector-model-edit.js';
@@ -48,17 +51,6 @@ const VANISH = 2;
 const LOC = 3;
 const PER_COMPONENT = LOC + 2 * MV_MAX_DIM;
 
-/** Per component: a and b of the three weight alternatives, and ln b (the ratio for plainly-other events). */
-const C_UP_A = 0;
-const C_UP_B = 1;
-const C_DN_A = 2;
-const C_DN_B = 3;
-const C_VA_A = 4;
-const C_VA_B = 5;
-const C_UP_LB = 6;
-const C_DN_LB = 7;
-const C_VA_LB = 8;
-const CONSTS = 9;
 
 const SOURCE_FIT = -1;
 const SOURCE_BORN = -2;
@@ -107,9 +99,7 @@ export class VectorStreamMonitor {
   private bgCenter = new Float64Array(0);
   private bgScale = new Float64Array(0);
   private bgConst = 0;
-  private surpriseMean = 0;
-  private surpriseVar = 1;
-  private surpriseCount = 0;
+  private readonly surprise = new SurpriseTracker();
   private accepted = 0;
   private lastTs = 0;
   private lastOffset = -1;
@@ -129,7 +119,7 @@ export class VectorStreamMonitor {
     this.curIds = new Int32Array(config.capacity);
     this.shifts = new CusumBank(config.capacity * PER_COMPONENT);
     this.owned = new Uint8Array(config.capacity * PER_COMPONENT);
-    this.consts = new Float64Array(config.capacity * CONSTS);
+    this.consts = new Float64Array(config.capacity * WEIGHT_CONSTS);
     this.locSd = new Float64Array(config.capacity * MV_MAX_DIM);
     this.locPen = new Float64Array(config.capacity * MV_MAX_DIM);
     this.book = new AlertBook(stream, listener);
@@ -207,7 +197,7 @@ export class VectorStreamMonitor {
     else this.learnStructure(novelSurprise, ts, offset);
 
     if (quiet && rG > 0.5) (this.ref as OnlineMvMixture).update(xv);
-    if (quiet) this.learnSurprise(surprise);
+    if (quiet) this.surprise.learn(surprise, this.config.referenceWindow);
     const cur = this.cur as OnlineMvMixture; // a birth may have replaced it
     if (cur === curBefore ? this.gaussiansWin(curLogP, xv) : this.gaussiansWin(this.withBackground(cur.mixture.logpdf(xv)), xv)) cur.update(xv);
     if (this.accepted % HOUSEKEEPING_EVERY === 0) this.housekeeping(ts, offset, quiet);
@@ -233,7 +223,7 @@ export class VectorStreamMonitor {
     ref.mixture.toFrame(this.xv, this.z);
     for (let j = 0; j < k; j++) {
       const r = rG * resp[j];
-      const c = j * CONSTS;
+      const c = j * WEIGHT_CONSTS;
       const base = j * PER_COMPONENT;
       const rOther = rG - r;
       this.locationTerms(ref.mixture, j);
@@ -271,10 +261,7 @@ export class VectorStreamMonitor {
       }
     }
     // Fit: standardised surprise, clipped so one wild event cannot decide alone.
-    let zf = (surprise - this.surpriseMean) / Math.sqrt(this.surpriseVar);
-    if (zf > FIT_CLIP) zf = FIT_CLIP;
-    else if (zf < -FIT_CLIP) zf = -FIT_CLIP;
-    const fitStat = this.fit.step(0, zf - FIT_SLACK, offset, ts);
+    const fitStat = this.fit.step(0, this.surprise.standardized(surprise, FIT_CLIP) - FIT_SLACK, offset, ts);
     if (fitStat >= cfg.fitThreshold && this.book.get(this.book.key('poor_fit', null)) === undefined) this.openFit(ts);
 
     const cand = this.tagAndSearch(novelSurprise, ts, offset);
@@ -342,7 +329,7 @@ export class VectorStreamMonitor {
    */
   private tagAndSearch(surprise: number, ts: number, offset: number): VectorCandidate | null {
     const byBackground = this.config.outlierWeight > 0 && surprise > -this.bgLogOdds();
-    const tagged = byBackground || (this.surpriseCount >= TAG_MIN_COUNT && surprise > this.surpriseMean + TAG_SDS * Math.sqrt(this.surpriseVar));
+    const tagged = byBackground || (this.surprise.count >= TAG_MIN_COUNT && surprise > this.surprise.mean + TAG_SDS * Math.sqrt(this.surprise.variance));
     if (!tagged) return null;
     const nov = this.novelty as VectorNovelty;
     nov.push(this.xv, surprise, this.accepted, ts, offset);
@@ -665,21 +652,7 @@ export class VectorStreamMonitor {
     const lambda = cfg.locationShiftSds;
     this.unit.fill(Infinity);
     for (let j = 0; j < ref.k; j++) {
-      const w = Math.min(Math.max(m.weights[j], 1e-9), 1 - 1e-9);
-      const delta = Math.max(cfg.weightShiftAbsolute, cfg.weightShiftRelative * Math.min(w, 1 - w));
-      const up = Math.min(w + delta, 0.5 * (w + 1));
-      const down = Math.max(w - delta, 0.5 * w);
-      const van = w * cfg.vanishFraction;
-      const c = j * CONSTS;
-      this.consts[c + C_UP_A] = up / w;
-      this.consts[c + C_UP_B] = (1 - up) / (1 - w);
-      this.consts[c + C_DN_A] = down / w;
-      this.consts[c + C_DN_B] = (1 - down) / (1 - w);
-      this.consts[c + C_VA_A] = van / w;
-      this.consts[c + C_VA_B] = (1 - van) / (1 - w);
-      this.consts[c + C_UP_LB] = Math.log(this.consts[c + C_UP_B]);
-      this.consts[c + C_DN_LB] = Math.log(this.consts[c + C_DN_B]);
-      this.consts[c + C_VA_LB] = Math.log(this.consts[c + C_VA_B]);
+      setWeightAlternatives(this.consts, j * WEIGHT_CONSTS, m.weights[j], cfg);
       // Location: √C_ii and ½λ²C_ii(C⁻¹)_ii, with (C⁻¹)_ii = |L⁻¹e_i|² by forward substitution.
       const lo = j * d * d;
       const L = m.frameChol;
@@ -733,15 +706,6 @@ export class VectorStreamMonitor {
     return Math.log(2 * this.config.outlierWeight) + this.bgLogPdf(this.xv);
   }
 
-  /** Running mean and variance of the surprise under the reference, learned while quiet. */
-  private learnSurprise(s: number): void {
-    if (!Number.isFinite(s)) return;
-    this.surpriseCount++;
-    const g = Math.max(1 / this.surpriseCount, 1 / this.config.referenceWindow);
-    const dv = s - this.surpriseMean;
-    this.surpriseMean += g * dv;
-    this.surpriseVar = Math.max((1 - g) * (this.surpriseVar + g * dv * dv), 1e-6);
-  }
 
   private removeCurrent(j: number): void {
     const cur = this.cur as OnlineMvMixture;
@@ -830,9 +794,9 @@ export class VectorStreamMonitor {
       bgCenter: Array.from(this.bgCenter),
       bgScale: Array.from(this.bgScale),
       bgConst: this.bgConst,
-      surpriseMean: this.surpriseMean,
-      surpriseVar: this.surpriseVar,
-      surpriseCount: this.surpriseCount,
+      surpriseMean: this.surprise.mean,
+      surpriseVar: this.surprise.variance,
+      surpriseCount: this.surprise.count,
       accepted: this.accepted,
       lastTs: this.lastTs,
       lastOffset: this.lastOffset,
@@ -866,9 +830,9 @@ export class VectorStreamMonitor {
     m.bgCenter.set(s.bgCenter);
     m.bgScale.set(s.bgScale);
     m.bgConst = s.bgConst;
-    m.surpriseMean = s.surpriseMean;
-    m.surpriseVar = s.surpriseVar;
-    m.surpriseCount = s.surpriseCount;
+    m.surprise.mean = s.surpriseMean;
+    m.surprise.variance = s.surpriseVar;
+    m.surprise.count = s.surpriseCount;
     m.accepted = s.accepted;
     m.lastTs = s.lastTs;
     m.lastOffset = s.lastOffset;
@@ -943,13 +907,7 @@ function indexOf(ids: Int32Array, k: number, id: number): number {
   return -1;
 }
 
-function pct(w: number): string {
-  return `${(100 * w).toFixed(1)} %`;
-}
 
-function fmt(x: number): string {
-  return Math.abs(x) >= 1e5 || (Math.abs(x) < 1e-3 && x !== 0) ? x.toExponential(3) : Number(x.toPrecision(4)).toString();
-}
 
 function vec(v: ArrayLike<number>): string {
   return `(${Array.from(v, fmt).join(', ')})`;
