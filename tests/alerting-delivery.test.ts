@@ -350,7 +350,8 @@ describe('fanout', () => {
     ]);
     closers.push(() => fan.close());
     fan.publish(transition());
-    await until(() => ok.seen.length === 1, 1000);
+    // The server sees the request before the client has read the answer: wait for the delivery to be counted.
+    await until(() => ok.seen.length === 1 && fan.stats().get('fine')?.delivered === 1, 5000);
     const stats = fan.stats();
     expect(stats.get('broken')?.failed).toBe(1);
     expect(stats.get('slow')?.queueLength).toBe(1);

@@ -106,7 +106,7 @@ describe('daemon end to end', () => {
       daemonModels[e.name] = { scale: m.scale, state: m.state, events: m.eventsAccepted, reference: m.views(m.reference).map(strip), current: m.views(m.current).map(strip) };
     }
     expect(daemonModels).toEqual(summary.finalComponents);
-    const liveStates = new Map([...registry.streams()].map((e) => [e.name, e.monitor.exportState()]));
+    const liveStates = new Map([...registry.streams()].map((e) => [e.name, e.feed.monitor.exportState()]));
     // Totals cover the partitions held, so they are read before the stop revokes them.
     expect(daemon.totals()).toEqual({ accepted: events.length, rejected: {}, positions: { [`${topic}-0`]: events.length } });
 

@@ -156,7 +156,7 @@ describe('routes', () => {
     const ok = await fetch(url, { method: 'POST', headers: { Origin: new URL(plain.url).origin } });
     expect(ok.status).toBe(202);
     expect(m.reference).not.toBe(before); // the reference was replaced by the current model
-    for (let j = 0; j < m.reference!.k; j++) expect(m.reference!.weight(j)).toBeCloseTo(m.current!.weight(m.current!.indexOf(m.reference!.id(j))), 12);
+    for (let j = 0; j < m.reference!.k; j++) expect(m.reference!.weight(j)).toBeCloseTo(m.current!.weight(idx(m.current!, m.reference!.id(j))), 12);
   });
 
   it('serves the page shell and its assets with a strict content security policy', async () => {
@@ -249,3 +249,9 @@ describe('web configuration', () => {
     expect(streamPageUrl('https://ops.example/modewatch/', ODD)).toBe('https://ops.example/modewatch/streams/checkout%2Flatency%20%3F%23%25%22x');
   });
 });
+
+/** Index of the component with this stable id. */
+function idx(model: { k: number; id(j: number): number }, id: number): number {
+  for (let j = 0; j < model.k; j++) if (model.id(j) === id) return j;
+  return -1;
+}

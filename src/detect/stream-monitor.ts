@@ -28,6 +28,7 @@ import { fmt, pct } from './evidence-text.js';
 import { SurpriseTracker } from './surprise.js';
 import { C_DN_A, C_DN_B, C_DN_LB, C_UP_A, C_UP_B, C_UP_LB, C_VA_A, C_VA_B, C_VA_LB, WEIGHT_CONSTS, setWeightAlternatives } from './weight-alternatives.js';
 import { CusumBank } from './cusum-bank.js';
+import type { Monitor, MonitorPhase } from './monitor.js';
 import type { MonitorConfig } from './monitor-config.js';
 import { NoveltyGrid } from './novelty-grid.js';
 
@@ -52,9 +53,8 @@ const RECENT_GAIN = 1 / 64;
 const FIT_SLACK = 0.5;
 const FIT_CLIP = 3;
 
-export type MonitorPhase = 'bootstrap' | 'warmup' | 'armed';
 
-export class StreamMonitor {
+export class StreamMonitor implements Monitor {
   readonly stream: string;
   readonly config: MonitorConfig;
   private phase: MonitorPhase = 'bootstrap';
@@ -112,6 +112,14 @@ export class StreamMonitor {
   alerts(): ActiveAlert[] {
     return this.book.list();
   }
+
+  /** Log-likelihood per event of recent quiet events under the reference (nats, model scale), or null before warm-up. */
+  logLikelihoodPerEvent(): number | null {
+    return this.phase === 'bootstrap' || this.surprise.count === 0 ? null : -this.surprise.mean;
+  }
+
+  /** A stream of numbers has dimension 1. */
+  readonly dimension = 1;
 
   /** Largest statistic over its threshold (>= 1 means some detector is over threshold). */
   shiftScore(): number {

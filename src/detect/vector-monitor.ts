@@ -484,6 +484,17 @@ export class VectorStreamMonitor {
     return out.sort((a, b) => a.mean[0] - b.mean[0]);
   }
 
+  /** Stable ids of the reference's or current mixture's components, in the mixture's own order (1..k for another mixture). */
+  idsInOrder(model: MvMixture): number[] {
+    const ids = this.idsOf(model);
+    return Array.from({ length: model.k }, (_, j) => (ids === null ? j + 1 : ids[j]));
+  }
+
+  /** Log-likelihood per event of recent quiet events under the reference (nats), or null before warm-up. */
+  logLikelihoodPerEvent(): number | null {
+    return this.phase === 'bootstrap' || this.surprise.count === 0 ? null : -this.surprise.mean;
+  }
+
   private idsOf(model: MvMixture): Int32Array | null {
     if (this.ref !== null && model === this.ref.mixture) return this.refIds;
     if (this.cur !== null && model === this.cur.mixture) return this.curIds;

@@ -15,7 +15,7 @@
  *   has no series (Prometheus marks them stale at the next scrape).
  */
 import type { ScaleName } from '../math/scale.js';
-import type { StreamMonitor } from '../detect/stream-monitor.js';
+import type { Monitor } from '../detect/monitor.js';
 import type { StreamEntry, StreamRegistry } from '../streams/stream-registry.js';
 import { METRICS, UNIT_FACTORS } from './metric-names.js';
 import { escapeLabelValue, familyHeader, formatValue } from './text-format.js';
@@ -33,14 +33,6 @@ export function unitFamily(family: string, unit: string): string {
   return b === null ? family : `${family}_${b.base}`;
 }
 
-/**
- * A monitor may offer the current model's average log-likelihood per event (nats, stream units).
- * Read when present so that the metric appears as soon as detection provides it.
- */
-interface FitReadout {
-  logLikelihoodPerEvent?: () => number | null;
-}
-
 const HELP = {
   weight: 'Weight of a mixture component in the current (fast) model of a stream, 0..1.',
   refWeight: 'Weight of a mixture component in the reference (slow, what is normal) model of a stream, 0..1.',
@@ -48,7 +40,7 @@ const HELP = {
   spread: 'Spread of a component of the current model: half the width of its central 68.27% interval',
   components: 'Number of components in the current model of a stream (0 while bootstrapping).',
   shift: 'Largest detector statistic of a stream divided by its threshold (>= 1: some detector is over threshold).',
-  loglik: 'Average log-likelihood per event of recent events under the current model of a stream, in nats.',
+  loglik: 'Average log-likelihood per event of recent quiet events under the reference model of a stream, in nats on its model scale.',
   alert: 'Active alerts of a stream by kind and state (pending or firing).',
   events: 'Events accepted into a stream model.',
   lastTs: 'Event time of the last event accepted into a stream, in seconds since the epoch.',
@@ -280,14 +272,12 @@ function spreadOf(scale: ScaleName, mu: number, sd: number): number {
   return 0.5 * (Math.expm1(mu + sd) - Math.expm1(mu - sd));
 }
 
-function readLogLikelihood(m: StreamMonitor): number | null {
-  const f = (m as unknown as FitReadout).logLikelihoodPerEvent;
-  if (typeof f !== 'function') return null;
-  const v = f.call(m);
-  return typeof v === 'number' && Number.isFinite(v) ? v : null;
+function readLogLikelihood(m: Monitor): number | null {
+  const v = m.logLikelihoodPerEvent();
+  return v !== null && Number.isFinite(v) ? v : null;
 }
 
-function writeAlerts(f: FamilyWriter, m: StreamMonitor, s: Buffer): void {
+function writeAlerts(f: FamilyWriter, m: Monitor, s: Buffer): void {
   const active = m.alerts();
   if (active.length === 0) return;
   // Count by (kind, state): a stream may have two alerts of one kind on different components.

@@ -6,7 +6,7 @@
  */
 import type { AlertEvidence, AlertKind, AlertTransition, ComponentView } from '../detect/alert.js';
 import type { StreamEntry } from '../streams/stream-registry.js';
-import type { OnlineMixture1D } from '../math/stepwise-em1d.js';
+import type { ComponentModel } from '../detect/monitor.js';
 import { fromModel, toModel, type ScaleName } from '../math/scale.js';
 
 export interface ActiveAlertView {
@@ -127,7 +127,7 @@ export function streamDetail(e: StreamEntry): StreamDetail {
 }
 
 /** Mixture density on the model scale at y (Gaussians only; the background takes a negligible share). */
-function densityOn(model: OnlineMixture1D | null, y: number): number {
+function densityOn(model: ComponentModel | null, y: number): number {
   if (model === null) return 0;
   let p = 0;
   for (let j = 0; j < model.k; j++) {
@@ -138,7 +138,7 @@ function densityOn(model: OnlineMixture1D | null, y: number): number {
   return p;
 }
 
-function bands(model: OnlineMixture1D | null, scale: ScaleName): Band[] {
+function bands(model: ComponentModel | null, scale: ScaleName): Band[] {
   if (model === null) return [];
   const out: Band[] = [];
   for (let j = 0; j < model.k; j++) {
@@ -153,7 +153,7 @@ function bands(model: OnlineMixture1D | null, scale: ScaleName): Band[] {
  * The chart's range on the model scale: the central 99 % of recent values (so one outlier does not
  * squash the picture) joined with every component's mean ± 3.5 sd, padded by 5 %.
  */
-function axisRange(sortedYs: number[], models: (OnlineMixture1D | null)[]): [number, number] {
+function axisRange(sortedYs: number[], models: (ComponentModel | null)[]): [number, number] {
   let lo = Infinity;
   let hi = -Infinity;
   if (sortedYs.length > 0) {

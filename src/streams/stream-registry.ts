@@ -6,7 +6,10 @@
  */
 import type { AlertTransition } from '../detect/alert.js';
 import type { MonitorConfig } from '../detect/monitor-config.js';
+import type { Monitor } from '../detect/monitor.js';
 import { StreamMonitor, type MonitorState } from '../detect/stream-monitor.js';
+import { VectorMonitorView } from '../detect/vector-monitor-view.js';
+import { VectorStreamMonitor, type VectorMonitorState } from '../detect/vector-monitor.js';
 import type { DecodeRejection, EventSlot } from '../ingest/event.js';
 import type { ValueRejection } from '../math/reject.js';
 
@@ -24,7 +27,10 @@ export type SettingsResolver = (stream: string) => StreamSettings;
 
 export interface StreamEntry {
   readonly name: string;
-  readonly monitor: StreamMonitor;
+  /** What everything downstream reads (exporter, API, page), whatever the stream carries. */
+  readonly monitor: Monitor;
+  /** The stream's monitor, by what its events carry (fixed by its first event). */
+  readonly feed: { kind: 'number'; monitor: StreamMonitor } | { kind: 'vector'; monitor: VectorStreamMonitor };
   readonly settings: StreamSettings;
   /** Source partition the stream's events come from (for checkpoints). */
   partition: string;
@@ -82,16 +88,14 @@ export class StreamRegistry {
         this.reject('stream_limit');
         return 'stream_limit';
       }
-      entry = this.create(slot.stream, slot.partition);
+      entry = this.create(slot.stream, slot.partition, slot.dim === 1 ? undefined : { kind: 'vector', state: null });
     }
     this.lastName = slot.stream;
     this.lastEntry = entry;
-    if (slot.dim !== 1) {
-      entry.rejected++;
-      this.reject('wrong_dimension');
-      return 'wrong_dimension';
-    }
-    const r = entry.monitor.observe(slot.value, slot.ts, slot.offset);
+    const feed = entry.feed;
+    let r: RouteRejection | null;
+    if (feed.kind === 'number') r = slot.dim === 1 ? feed.monitor.observe(slot.value, slot.ts, slot.offset) : 'wrong_dimension';
+    else r = slot.dim === 1 ? 'wrong_dimension' : feed.monitor.observeVector(slot.vector, slot.dim, slot.ts, slot.offset);
     if (r !== null) {
       entry.rejected++;
       this.reject(r);
@@ -99,7 +103,7 @@ export class StreamRegistry {
     }
     this.accepted++;
     const n = entry.recent.length;
-    if (n > 0) entry.recent[entry.recentCount++ % n] = slot.value;
+    if (n > 0) entry.recent[entry.recentCount++ % n] = slot.dim === 1 ? slot.value : slot.vector[0];
     return null;
   }
 
@@ -120,7 +124,7 @@ export class StreamRegistry {
     return this.entries.delete(name);
   }
 
-  private create(name: string, partition: string, state?: MonitorState): StreamEntry {
+  private create(name: string, partition: string, state?: SavedMonitor): StreamEntry {
     const settings = this.opts.resolve(name);
     const history: AlertTransition[] = [];
     const limit = this.opts.historyLength;
@@ -129,10 +133,21 @@ export class StreamRegistry {
       if (history.length > limit) history.shift();
       this.opts.onAlert(t);
     };
-    const monitor = state === undefined ? new StreamMonitor(name, settings.monitor, listener) : StreamMonitor.importState(state, settings.monitor, listener);
+    let feed: StreamEntry['feed'];
+    let monitor: Monitor;
+    if (state === undefined || state.kind === 'number') {
+      const m = state === undefined ? new StreamMonitor(name, settings.monitor, listener) : StreamMonitor.importState(state.state, settings.monitor, listener);
+      feed = { kind: 'number', monitor: m };
+      monitor = m;
+    } else {
+      const m = state.state === null ? new VectorStreamMonitor(name, settings.monitor, listener) : VectorStreamMonitor.importState(state.state, settings.monitor, listener);
+      feed = { kind: 'vector', monitor: m };
+      monitor = new VectorMonitorView(m);
+    }
     const entry: StreamEntry = {
       name,
       monitor,
+      feed,
       settings,
       partition,
       rejected: 0,
@@ -149,7 +164,8 @@ export class StreamRegistry {
     const out: RegistrySnapshot[] = [];
     for (const e of this.entries.values()) {
       if (partitions !== undefined && !partitions.has(e.partition)) continue;
-      out.push({ stream: e.name, partition: e.partition, monitor: e.monitor.exportState(), rejected: e.rejected, history: e.history.slice() });
+      const monitor: SavedMonitor = e.feed.kind === 'number' ? { kind: 'number', state: e.feed.monitor.exportState() } : { kind: 'vector', state: e.feed.monitor.exportState() };
+      out.push({ stream: e.name, partition: e.partition, monitor, rejected: e.rejected, history: e.history.slice() });
     }
     return out;
   }
@@ -170,10 +186,13 @@ export class StreamRegistry {
   }
 }
 
+/** A monitor's saved state, by the kind of events its stream carries. */
+export type SavedMonitor = { kind: 'number'; state: MonitorState } | { kind: 'vector'; state: VectorMonitorState | null };
+
 export interface RegistrySnapshot {
   stream: string;
   partition: string;
-  monitor: MonitorState;
+  monitor: SavedMonitor;
   rejected: number;
   history: AlertTransition[];
 }

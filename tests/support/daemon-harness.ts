@@ -4,7 +4,7 @@
  * the checkpoint directory read back, and exact comparison of monitor states.
  */
 import { spawn, type ChildProcess } from 'node:child_process';
-import { createWriteStream, type WriteStream } from 'node:fs';
+import { createWriteStream, existsSync, type WriteStream } from 'node:fs';
 import { writeFile } from 'node:fs/promises';
 import { join, resolve } from 'node:path';
 import { Kafka, logLevel, type IHeaders, type KafkaMessage } from 'kafkajs';
@@ -174,6 +174,7 @@ export class DaemonProcess {
   }
 
   static spawn(configPath: string, logFile: string): DaemonProcess {
+    if (!existsSync(CLI)) throw new Error(`${CLI} is missing: run "npm run build" first (the daemon runs from dist/)`);
     const log = createWriteStream(logFile, { flags: 'a' });
     const env = { ...process.env };
     delete env.MODEWATCH_KAFKA_BROKERS; // the config file names the broker of this test
@@ -252,7 +253,10 @@ export async function loadCheckpointDir(dir: string): Promise<SavedCheckpoint> {
   const cp = await store.load();
   await store.close();
   const monitors = new Map<string, MonitorState>();
-  for (const s of cp.streams) monitors.set(s.stream, (JSON.parse(s.state) as RegistrySnapshot).monitor);
+  for (const s of cp.streams) {
+    const saved = (JSON.parse(s.state) as RegistrySnapshot).monitor;
+    if (saved.kind === 'number') monitors.set(s.stream, saved.state);
+  }
   return { positions: cp.positions, counters: cp.counters, monitors };
 }
 
