@@ -11,7 +11,7 @@ import { Mixture1D } from './mixture1d.js';
 import { Random } from './random.js';
 import { logJacobian, toModel, type ScaleName } from './scale.js';
 import { LOG_SQRT_2PI } from './normal.js';
-import { expNonPositive } from './stepwise-em1d.js';
+import { expNonPositive } from './exp.js';
 
 export interface BatchFitOptions {
   /** Convergence: stop when the mean log-likelihood per point changes by less than this. */

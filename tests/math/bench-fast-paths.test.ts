@@ -1,7 +1,8 @@
 import { describe, expect, it } from 'vitest';
 import { Mixture1D } from '../../src/math/mixture1d.js';
 import { Random } from '../../src/math/random.js';
-import { OnlineMixture1D, expNonPositive, type OnlineMixture1DState } from '../../src/math/stepwise-em1d.js';
+import { expNonPositive } from '../../src/math/exp.js';
+import { OnlineMixture1D, type OnlineMixture1DState } from '../../src/math/stepwise-em1d.js';
 
 // The fast paths of the stepwise update (src/bench/engine.ts measures them) must give the results of the plain
 // formulas up to floating-point rounding.
