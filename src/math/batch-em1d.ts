@@ -139,7 +139,8 @@ function prepare(x: ArrayLike<number>, scale: ScaleName): Prepared {
   }
   const center = mean * m;
   let spread = Math.sqrt(varSum / n) * m;
-  if (!(spread > 0) || !Number.isFinite(spread)) spread = m > 0 && maxAbs > 0 ? maxAbs * 1e-9 : 1;
+  // No spread (one repeated value, or denormals whose spread underflows): any positive unit will do.
+  if (!(spread > 0) || !Number.isFinite(spread)) spread = maxAbs * 1e-9 > 0 ? maxAbs * 1e-9 : maxAbs > 0 ? maxAbs : 1;
   const z = new Float64Array(n);
   for (let i = 0; i < n; i++) z[i] = (y[i] - center) / spread;
   return { scale, n, z, center, spread, logLikShift: jac - n * Math.log(spread) };

@@ -153,3 +153,12 @@ describe('bad input and documents', () => {
     expect(() => onlineFromJSON({ format: 'modewatch/online-mixture1d', version: 1 })).toThrow(/options/);
   });
 });
+
+describe('regressions found by the property tests', () => {
+  it('denormal data whose spread underflows still fits ([0, 0, 5e-324])', () => {
+    const fit = fitMixture1D([0, 0, 5e-324], 1, 'identity', { restarts: 1 });
+    expect(Number.isFinite(fit.logLikelihood)).toBe(true);
+    expect(Number.isFinite(fit.mixture.means[0])).toBe(true);
+    expect(fit.mixture.sds[0]).toBeGreaterThan(0);
+  });
+});
