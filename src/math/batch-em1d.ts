@@ -159,7 +159,7 @@ function fitPrepared(p: Prepared, k: number, opts: Required<BatchFitOptions>, rn
   const sds = new Float64Array(k);
   for (let j = 0; j < k; j++) {
     means[j] = p.center + p.spread * best.mu[j];
-    sds[j] = p.spread * Math.sqrt(best.v[j]);
+    sds[j] = Math.max(p.spread * Math.sqrt(best.v[j]), Number.MIN_VALUE); // denormal data: the sd may underflow
   }
   const mixture = new Mixture1D(p.scale, best.w, means, sds);
   const logLikelihood = best.ll + p.logLikShift;
