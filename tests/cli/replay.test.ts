@@ -4,6 +4,7 @@ import { join } from 'node:path';
 import { Writable } from 'node:stream';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { runReplay } from '../../src/cli/replay.js';
+import { Random } from '../../src/math/random.js';
 import { simulate } from '../../src/simulate/generator.js';
 import { buildScenario } from '../../src/simulate/suite.js';
 
@@ -95,5 +96,29 @@ describe('modewatch replay', () => {
     await runReplay({ files: [p1, p2] }, parts);
     const strip = (r: Record<string, unknown>) => ({ ...r, file: undefined });
     expect(parts.records().map(strip)).toEqual(whole.records().map(strip));
+  });
+
+  it('models a stream of vectors with the vector monitor, and refuses numbers on it', async () => {
+    // An invented stream of (latency ms, size KB) pairs from two clusters.
+    const rng = new Random(3);
+    const lines: string[] = [];
+    for (let i = 0; i < 6000; i++) {
+      const fast = rng.uniform() < 0.7;
+      const v = fast ? [40 + 4 * rng.normal(), 2 + 0.3 * rng.normal()] : [180 + 15 * rng.normal(), 9 + 1 * rng.normal()];
+      lines.push(JSON.stringify({ ts: 1000 * i, stream: 'pairs', value: v }));
+    }
+    lines.push(JSON.stringify({ ts: 0, stream: 'pairs', value: 5 }));
+    const path = join(dir, 'pairs.ndjson');
+    await writeFile(path, lines.join('\n') + '\n');
+    const s = await runReplay({ files: [path] }, new Lines());
+    expect(s.accepted).toBe(6000);
+    expect(s.rejected).toEqual({ wrong_dimension: 1 });
+    const c = s.finalComponents.pairs;
+    expect(c.state).toBe('armed');
+    expect(c.current.length).toBe(2);
+    // Read-outs are the first axis: the two cluster means, with their weights.
+    expect(c.current[0].location).toBeCloseTo(40, 0);
+    expect(c.current[1].location).toBeGreaterThan(170);
+    expect(c.current[0].weight).toBeGreaterThan(0.6);
   });
 });
