@@ -99,6 +99,7 @@ interface FitArgs {
   restarts: number;
   tolerance: number;
   'max-iterations': number;
+  'screen-rows': number;
   'skip-invalid': boolean;
   json: boolean;
   plot?: string;
@@ -136,6 +137,11 @@ export const fitCommand: CommandModule<object, FitArgs> = {
         describe: 'EM stops when the mean log-likelihood per row changes by less than this (candidates are compared at max(this, 1e-6), the chosen fit is refined to this)',
       })
       .option('max-iterations', { type: 'number', default: FIT_DEFAULTS.maxIterations, describe: 'EM iteration cap per start' })
+      .option('screen-rows', {
+        type: 'number',
+        default: FIT_DEFAULTS.screenRows,
+        describe: 'One column with more rows: choose k and the scale on a random sample of this many rows, then fit the chosen model on every row (0: all rows)',
+      })
       .option('skip-invalid', {
         type: 'boolean',
         default: false,
@@ -156,6 +162,7 @@ export const fitCommand: CommandModule<object, FitArgs> = {
       restarts: argv.restarts,
       tolerance: argv.tolerance,
       maxIterations: argv['max-iterations'],
+      screenRows: argv['screen-rows'],
       skipInvalid: argv['skip-invalid'],
       json: argv.json,
       plot: argv.plot,

@@ -6,6 +6,7 @@
  *
  * The report lists components sorted by the mean of their first dimension, in the data's units.
  */
+import { Random } from '../math/random.js';
 import { fitMixture1D, inDomain, type BatchFit } from '../math/batch-em1d.js';
 import { fitMvMixture, MV_MAX_DIM, type MvFitResult } from '../math/mv/index.js';
 import { logJacobian, toModel, type ScaleName } from '../math/scale.js';
@@ -27,6 +28,11 @@ export interface FitSettings {
   tolerance: number;
   maxIterations: number;
   skipInvalid: boolean;
+  /**
+   * One column with more rows than this: k and the scale are chosen on a seeded random sample of this many rows,
+   * and only the chosen fit runs on every row (0: screen on all rows).
+   */
+  screenRows: number;
 }
 
 export const FIT_DEFAULTS: FitSettings = {
@@ -38,6 +44,7 @@ export const FIT_DEFAULTS: FitSettings = {
   tolerance: 1e-8,
   maxIterations: 1000,
   skipInvalid: false,
+  screenRows: 20_000,
 };
 
 /**
@@ -116,6 +123,7 @@ export function checkSettings(s: FitSettings): void {
   intIn('--seed', s.seed, 0, 0xffffffff);
   intIn('--restarts', s.restarts, 1, 1000);
   intIn('--max-iterations', s.maxIterations, 1, 1_000_000);
+  intIn('--screen-rows', s.screenRows, 0, 1_000_000_000);
   if (!(s.tolerance > 0) || !Number.isFinite(s.tolerance)) throw new FitInputError(`--tolerance must be a positive number, got ${s.tolerance}`);
 }
 
@@ -184,7 +192,10 @@ function fitOneColumn(
     const left = (['log', 'log1p'] as const).filter((sc) => !scales.includes(sc));
     if (left.length > 0) notes.push(`scale ${left.join(' and ')} not tried: some values are outside ${left.length > 1 ? 'their domains' : 'its domain'} (${left.map((sc) => DOMAIN_TEXT[sc]).join(', ')})`);
   } else scales = [s.scale];
-  const total = scales.length * (kMax - s.kMin + 1);
+  const screening = s.screenRows > 0 && n > s.screenRows && s.screenRows >= kMax;
+  const xs = screening ? sampleRows(x, s.screenRows, s.seed) : x;
+  if (screening) notes.push(`k${s.scale === 'auto' ? ' and the scale were' : ' was'} chosen on a random ${s.screenRows} of the ${n} rows (the candidates table); the chosen fit uses every row (--screen-rows 0 screens on all)`);
+  const total = scales.length * (kMax - s.kMin + 1) + (screening ? 1 : 0);
   let done = 0;
   const opts = { seed: s.seed, restarts: s.restarts, tol: Math.max(s.tolerance, SCREEN_TOLERANCE), maxIter: s.maxIterations };
   let chosen: { scale: ScaleName; best: BatchFit; candidates: Candidate[] } | null = null;
@@ -193,7 +204,7 @@ function fitOneColumn(
     let best: BatchFit | null = null;
     const candidates: Candidate[] = [];
     for (let k = s.kMin; k <= kMax; k++) {
-      const fit = fitMixture1D(x, k, scale, opts);
+      const fit = fitMixture1D(xs, k, scale, opts);
       candidates.push({ k, logLikelihood: fit.logLikelihood, bic: fit.bic });
       if (best === null || fit.bic < best.bic) best = fit;
       hooks.onFit?.(++done, total);
@@ -203,7 +214,10 @@ function fitOneColumn(
     if (chosen === null || best.bic < chosen.best.bic) chosen = { scale, best, candidates };
   }
   if (chosen === null) throw new Error('unreachable: no scale');
-  if (s.tolerance < opts.tol) {
+  if (screening) {
+    chosen.best = fitMixture1D(x, chosen.best.mixture.k, chosen.scale, { ...opts, tol: s.tolerance });
+    hooks.onFit?.(++done, total);
+  } else if (s.tolerance < opts.tol) {
     // Refine the winner; keep whichever of the two is the better optimum.
     const fine = fitMixture1D(x, chosen.best.mixture.k, chosen.scale, { ...opts, tol: s.tolerance });
     if (fine.logLikelihood >= chosen.best.logLikelihood) {
@@ -250,6 +264,21 @@ function fitOneColumn(
     marginalPdf: (v) => m.pdf(v),
     componentPdf,
   };
+}
+
+/** A seeded random sample of m values without replacement (partial Fisher–Yates). */
+function sampleRows(x: Float64Array, m: number, seed: number): Float64Array {
+  const idx = Int32Array.from({ length: x.length }, (_, i) => i);
+  const rng = new Random(seed ^ 0x5eed);
+  const out = new Float64Array(m);
+  for (let i = 0; i < m; i++) {
+    const j = i + rng.int(x.length - i);
+    const t = idx[i];
+    idx[i] = idx[j];
+    idx[j] = t;
+    out[i] = x[idx[i]];
+  }
+  return out;
 }
 
 /** A one-column component in data units; for log scales the log-normal's mean and sd (Johnson, Kotz & Balakrishnan 1994, ch. 14). */
