@@ -433,7 +433,8 @@ export class StreamMonitor implements Monitor {
     const cur = this.cur as OnlineMixture1D;
     const j = cur.indexOf(id);
     const s = j >= 0 ? summarizeComponent(this.scaleName, cur.weight(j), cur.mean(j), cur.sd(j)) : null;
-    const summary = s ? `a new mode near ${fmt(s.location)} carries ${pct(s.weight)} of events` : 'a new mode appeared';
+    // Right after its birth the weight is the excess seen since the first evidence: a small, selected sample, so say so.
+    const summary = s ? `a new mode near ${fmt(s.location)} carries about ${pct(s.weight)} of events (early estimate; the current model refines it)` : 'a new mode appeared';
     return this.baseEvidence('novelty_excess', statistic, this.config.threshold, id, prev ? prev.firstEvidenceTs : this.lastTs, prev ? prev.firstEvidenceOffset : this.lastOffset, summary);
   }
 
