@@ -110,7 +110,7 @@ describe('alertmanager sink with a real Alertmanager', () => {
         expect(a.annotations.after).toContain('#2 w=0.026 loc=912 spread=80');
         expect(a.annotations.first_evidence).toBe(new Date(now - 79_000).toISOString());
         expect(Date.parse(a.startsAt)).toBe(now - 60_000);
-        expect(a.generatorURL).toBe('http://127.0.0.1:9471/?stream=checkout');
+        expect(a.generatorURL).toBe('http://127.0.0.1:9471/streams/checkout');
       }
       expect(sink.stats().failed).toBe(0);
 

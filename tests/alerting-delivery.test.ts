@@ -292,7 +292,7 @@ describe('alertmanager sink against a local HTTP receiver', () => {
     expect(first[0].annotations.after).toBe(componentTable(transition().evidence.after));
     expect(first[0].annotations.after).toContain('#2 w=0.026 loc=912 spread=80');
     expect(first[0].annotations.first_evidence).toBe('2023-11-14T22:14:01.000Z');
-    expect(first[0].generatorURL).toBe('http://modewatch.example:9471/?stream=checkout');
+    expect(first[0].generatorURL).toBe('http://modewatch.example:9471/streams/checkout');
     expect(Date.parse(first[0].endsAt)).toBeGreaterThan(Date.now());
     expect(sink.activeCount()).toBe(1);
 

@@ -13,6 +13,7 @@
  * - Times: startsAt/endsAt come from event time, clamped to the wall clock so that events
  *   stamped in the future cannot produce an alert Alertmanager refuses (endsAt < startsAt).
  */
+import { streamPageUrl } from '../http/links.js';
 import type { AlertKind, AlertSink, AlertTransition, ComponentView } from '../detect/alert.js';
 import { DeliveryQueue, type DeliveryOptions, type ObservableSink, type SinkStats } from './delivery-queue.js';
 import { postJson } from './http-post.js';
@@ -209,9 +210,3 @@ export class AlertmanagerSink implements AlertSink, ObservableSink {
   }
 }
 
-/** The daemon's page for one stream: its web page at / with the stream selected. */
-export function streamPageUrl(base: string, stream: string): string {
-  const u = new URL(base.endsWith('/') ? base : `${base}/`);
-  u.searchParams.set('stream', stream);
-  return u.toString();
-}

@@ -65,10 +65,7 @@ export function basePathOf(externalUrl: string | undefined): string {
   return p === '/' ? '' : p;
 }
 
-/** Link to a stream's page, for alert sinks (e.g. an annotation with the page URL). */
-export function streamPageUrl(externalUrl: string, stream: string): string {
-  return `${externalUrl.replace(/\/+$/, '')}/streams/${encodeURIComponent(stream)}`;
-}
+export { streamPageUrl } from './links.js';
 
 export async function startHttpServer(options: HttpServerOptions): Promise<RunningHttpServer> {
   const { registry, health, webConfig } = options;
