@@ -81,6 +81,14 @@ export async function produce(brokers: string[], topic: string, records: readonl
 
 /** Reads a topic from the start until `count` messages were seen or timeoutMs passed; returns what it saw. */
 export async function consumeAll(brokers: string[], topic: string, count: number, timeoutMs: number): Promise<KafkaMessage[]> {
+  // The topic may be created by the daemon a moment from now (kafkajs refuses to subscribe before it exists).
+  const admin = kafkaClient(brokers).admin();
+  await admin.connect();
+  try {
+    await waitFor(`topic ${topic} to exist`, async () => (await admin.fetchTopicMetadata({ topics: [topic] })).topics[0]?.partitions.length > 0, timeoutMs, 200);
+  } finally {
+    await admin.disconnect();
+  }
   const consumer = kafkaClient(brokers).consumer({ groupId: `reader-${topic}-${process.pid}-${Date.now()}`, maxWaitTimeInMs: 200 });
   const got: KafkaMessage[] = [];
   await consumer.connect();
@@ -244,7 +252,7 @@ export async function eventsTotal(baseUrl: string): Promise<number | undefined> 
 export interface SavedCheckpoint {
   positions: Record<string, number>;
   counters: Record<string, Record<string, number>>;
-  /** Monitor state by stream name. */
+  /** Monitor state by stream name (number streams only: these tests send numbers). */
   monitors: Map<string, MonitorState>;
 }
 
