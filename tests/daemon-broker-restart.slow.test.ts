@@ -61,7 +61,7 @@ function need(ctx: TestContext): RestartableBroker {
 
 describe('daemon across a broker restart', () => {
   // A short outage, then one longer than kafkajs's default retry budget (5 retries, about 20 s of back-off).
-  it.for([3_000, 45_000])('broker down for %i ms: the daemon resumes; nothing lost, models as replay', async (downMs, ctx) => {
+  it.for([3_000, 45_000])('broker down for %i ms: the daemon resumes; nothing lost, models as replay', { timeout: 420_000 }, async (downMs, ctx) => {
     const k = need(ctx);
     const brokers = k.brokers;
     const tag = `${process.pid}-${Date.now()}`;
@@ -140,5 +140,5 @@ describe('daemon across a broker restart', () => {
       fromDaemon[name] = { scale: m.scale, state: m.state, events: m.eventsAccepted, reference: m.views(m.reference).map(strip), current: m.views(m.current).map(strip) };
     }
     expect(fromDaemon).toEqual(summary.finalComponents);
-  }, 420_000);
+  });
 });
