@@ -20,7 +20,7 @@ import { selectMixture1D, selectScaleAndMixture1D } from '../math/batch-em1d.js'
 import { bhattacharyyaGaussian } from '../math/distances.js';
 import { Mixture1D, summarizeComponent } from '../math/mixture1d.js';
 import type { ValueRejection } from '../math/reject.js';
-import { checkValue, toModel, type ScaleName } from '../math/scale.js';
+import { checkValue, checkValueByCode, scaleCode, toModelByCode, type ScaleCode, type ScaleName } from '../math/scale.js';
 import { OnlineMixture1D } from '../math/stepwise-em1d.js';
 import type { AlertEvidence, AlertKind, ComponentView } from './alert.js';
 import { AlertBook, type ActiveAlert, type TransitionListener } from './alert-book.js';
@@ -77,11 +77,16 @@ export class StreamMonitor implements Monitor {
   private lastOffset = -1;
   private readonly book: AlertBook;
   private pendingCount = 0;
+  private readonly quarterThreshold: number = 0;
+  /** The scale as a number: the per-event path compares numbers, not strings. */
+  private scaleCode: ScaleCode = 0;
 
   constructor(stream: string, config: MonitorConfig, listener: TransitionListener) {
     this.stream = stream;
     this.config = config;
     this.scaleName = config.scale === 'auto' ? 'identity' : config.scale;
+    this.scaleCode = scaleCode(this.scaleName);
+    this.quarterThreshold = 0.25 * config.threshold;
     this.shifts = new CusumBank(config.capacity * PER_COMPONENT);
     this.owned = new Uint8Array(config.capacity * PER_COMPONENT);
     this.consts = new Float64Array(config.capacity * WEIGHT_CONSTS);
@@ -143,11 +148,11 @@ export class StreamMonitor implements Monitor {
       if (this.bootCount === this.config.bootstrapEvents) this.bootstrap();
       return null;
     }
-    const rej = checkValue(this.scaleName, x);
+    const rej = checkValueByCode(this.scaleCode, x);
     if (rej !== null) return rej;
+    const y = toModelByCode(this.scaleCode, x);
     const ref = this.ref as OnlineMixture1D;
     const cur = this.cur as OnlineMixture1D;
-    const y = toModel(this.scaleName, x);
     this.accepted++;
     this.lastTs = ts;
     this.lastOffset = offset;
@@ -236,8 +241,14 @@ export class StreamMonitor implements Monitor {
 
   /** One CUSUM step; opens an alert on a crossing, resolves or caps one that is active. */
   private step(i: number, llr: number, offset: number, ts: number): number {
-    const h = this.config.threshold;
     const s = this.shifts.step(i, llr, offset, ts);
+    // Small enough to inline: the rest only matters near the threshold or for a statistic an alert owns.
+    if (s >= this.quarterThreshold || this.owned[i] !== 0) this.afterStep(i, s, offset, ts);
+    return s;
+  }
+
+  private afterStep(i: number, s: number, offset: number, ts: number): void {
+    const h = this.config.threshold;
     const o = this.owned[i];
     if (o !== 0) {
       // 1: an alert owns it; 2: it crossed while suppressed. Either way it is capped so it can come back down.
@@ -246,7 +257,6 @@ export class StreamMonitor implements Monitor {
         else this.owned[i] = 0;
       } else this.shifts.cap(i, 2 * h);
     } else if (s >= h) this.openShift(i, ts);
-    return s;
   }
 
   private fitOwnerless(): boolean {
@@ -449,6 +459,7 @@ export class StreamMonitor implements Monitor {
       const sel = selectScaleAndMixture1D(data, ['identity', 'log', 'log1p'], 1, cfg.maxComponents, opts);
       mixture = sel.best.mixture;
       this.scaleName = sel.scale;
+      this.scaleCode = scaleCode(sel.scale);
     } else {
       mixture = selectMixture1D(data, cfg.scale, 1, cfg.maxComponents, opts).best.mixture;
     }
@@ -484,6 +495,7 @@ export class StreamMonitor implements Monitor {
     const known = this.config.known ?? [];
     const log = known[0].family === 'lognormal';
     this.scaleName = log ? 'log' : 'identity';
+    this.scaleCode = scaleCode(this.scaleName);
     const m = new Mixture1D(
       this.scaleName,
       known.map((c) => c.weight),
@@ -617,6 +629,7 @@ export class StreamMonitor implements Monitor {
     (m as { config: MonitorConfig }).config = config;
     m.phase = s.phase;
     m.scaleName = s.scale;
+    m.scaleCode = scaleCode(s.scale);
     if (s.boot !== null) {
       m.boot = new Float64Array(config.bootstrapEvents);
       m.boot.set(s.boot);
@@ -667,5 +680,3 @@ export interface MonitorState {
   pendingCount: number;
   alerts: ActiveAlert[];
 }
-
-

@@ -13,9 +13,18 @@ export function isScaleName(s: string): s is ScaleName {
   return s === 'identity' || s === 'log' || s === 'log1p';
 }
 
+/** A scale as a small number, for per-event paths that should not compare strings: 0 identity, 1 log, 2 log1p. */
+export type ScaleCode = 0 | 1 | 2;
+export function scaleCode(scale: ScaleName): ScaleCode {
+  return scale === 'identity' ? 0 : scale === 'log' ? 1 : 2;
+}
+
 /** y = T(x). The caller has checked the domain. */
 export function toModel(scale: ScaleName, x: number): number {
-  return scale === 'identity' ? x : scale === 'log' ? Math.log(x) : Math.log1p(x);
+  return toModelByCode(scaleCode(scale), x);
+}
+export function toModelByCode(code: ScaleCode, x: number): number {
+  return code === 0 ? x : code === 1 ? Math.log(x) : Math.log1p(x);
 }
 
 /** x = T⁻¹(y). */
@@ -30,8 +39,10 @@ export function logJacobian(scale: ScaleName, x: number): number {
 
 /** Why x cannot be modelled on this scale, or null if it can. NaN and ±Infinity never reach a model. */
 export function checkValue(scale: ScaleName, x: number): ValueRejection | null {
-  if (!Number.isFinite(x)) return 'not_finite';
-  if (scale === 'log' && !(x > 0)) return 'out_of_domain';
-  if (scale === 'log1p' && !(x > -1)) return 'out_of_domain';
+  return checkValueByCode(scaleCode(scale), x);
+}
+export function checkValueByCode(code: ScaleCode, x: number): ValueRejection | null {
+  if (!(x - x === 0)) return 'not_finite'; // NaN and ±Infinity
+  if (code !== 0 && !(x > (code === 1 ? 0 : -1))) return 'out_of_domain';
   return null;
 }
