@@ -123,10 +123,11 @@ export class Daemon {
     const slot = this.slot;
     const records = batch.records;
     let next = this.positions.get(p) ?? -1;
+    // A batch is one partition, so one topic: one decoder look-up per batch, not per record.
+    const decode = records.length > 0 ? this.decoder(records[0].topic) : null;
     for (let i = 0; i < records.length; i++) {
       const rec = records[i];
       if (rec.offset < next) continue; // already covered (a re-delivered fetch after a seek)
-      const decode = this.decoder(rec.topic);
       slot.partition = p;
       slot.offset = rec.offset;
       let reason: RejectionReason | null = decode === null ? 'unparseable' : decode(rec, slot);
