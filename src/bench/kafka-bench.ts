@@ -1,0 +1,251 @@
+/**
+ * Kafka throughput and memory per stream (`npm run bench:kafka`; not a timed test).
+ *
+ * 1. Starts a broker (startBroker: MODEWATCH_KAFKA_BROKERS, Docker, or the Kafka jars), produces 1 million JSON
+ *    events {"ts","value"} keyed by stream (10 invented latency streams) to a one-partition topic, then reads the
+ *    topic from the start, in one run, with (a) a bare kafkajs consumer whose eachBatch does nothing and (b) the
+ *    daemon pipeline (startDaemon: KafkaSource, decoder, StreamRegistry, checkpoints to a directory at the default
+ *    cadence, no alert sinks). Each has its own group; the clock starts once the group is joined and stops when
+ *    all records were consumed (a) or accepted into the models (b).
+ * 2. Memory per 1-D stream: one monitor run to the armed state on simulated data, snapshotted, restored as N
+ *    renamed copies into a StreamRegistry built as the daemon builds it (256 recent values per stream); growth / N
+ *    of rss, heapUsed, and heapUsed + arrayBuffers (typed arrays live outside the JS heap) after a full GC,
+ *    for N = 10 000 and 100 000. rss also keeps what the allocator has not returned to the system. And the serialized model state per stream:
+ *    the JSON of the reference and current OnlineMixture1D states only.
+ *
+ * Prints JSON lines {"bench","value","unit"[,"target"]} like `npm run bench`. BENCH_KAFKA_EVENTS overrides the
+ * event count (e.g. for a quick look).
+ */
+import { mkdtemp, rm, writeFile } from 'node:fs/promises';
+import { tmpdir } from 'node:os';
+import { join } from 'node:path';
+import { pathToFileURL } from 'node:url';
+import { setFlagsFromString } from 'node:v8';
+import { runInNewContext } from 'node:vm';
+import { Kafka, logLevel } from 'kafkajs';
+import pino from 'pino';
+import { loadOrExplain, startDaemon } from '../cli/run-command.js';
+import { defaultResolver } from '../cli/replay.js';
+import { startBroker } from '../devtools/kafka-broker.js';
+import { EventSlot } from '../ingest/event.js';
+import { Random } from '../math/random.js';
+import { simulate } from '../simulate/generator.js';
+import { buildScenario } from '../simulate/suite.js';
+import type { MonitorState } from '../detect/stream-monitor.js';
+import { StreamRegistry, type RegistrySnapshot } from '../streams/stream-registry.js';
+
+interface Figure {
+  bench: string;
+  value: number;
+  unit: string;
+  target?: string;
+  [extra: string]: unknown;
+}
+
+function emit(f: Figure): void {
+  console.log(JSON.stringify(f));
+}
+
+function note(msg: string): void {
+  console.error(`[bench:kafka] ${msg}`);
+}
+
+const STREAMS = 10;
+
+/** Invented latencies: per stream a two-mode log-normal mixture (fast ~40 ms, slow ~180 ms). */
+async function produceEvents(brokers: string[], topic: string, n: number): Promise<void> {
+  const kafka = new Kafka({ clientId: 'modewatch-bench', brokers, logLevel: logLevel.NOTHING });
+  const admin = kafka.admin();
+  await admin.connect();
+  await admin.createTopics({ topics: [{ topic, numPartitions: 1, replicationFactor: 1 }], waitForLeaders: true });
+  await admin.disconnect();
+  const producer = kafka.producer({ allowAutoTopicCreation: false });
+  await producer.connect();
+  const rng = new Random(42);
+  const t0 = Date.UTC(2026, 0, 1);
+  const chunk = 20_000;
+  const inflight: Promise<unknown>[] = [];
+  for (let i = 0; i < n; i += chunk) {
+    const messages = [];
+    for (let j = i; j < Math.min(n, i + chunk); j++) {
+      const slow = rng.uniform() < 0.2;
+      const value = Math.exp((slow ? Math.log(180) : Math.log(40)) + (slow ? 0.3 : 0.25) * rng.normal());
+      messages.push({ key: `svc-${j % STREAMS}`, value: `{"ts":${t0 + j * 5},"value":${value.toFixed(3)}}` });
+    }
+    // A few requests in flight: produce is not what is measured, but it should not take all day.
+    inflight.push(producer.send({ topic, acks: 1, messages }));
+    if (inflight.length >= 4) await inflight.shift();
+  }
+  await Promise.all(inflight);
+  await producer.disconnect();
+}
+
+async function bareConsumer(brokers: string[], topic: string, n: number): Promise<number> {
+  const kafka = new Kafka({ clientId: 'modewatch-bench-bare', brokers, logLevel: logLevel.NOTHING });
+  const consumer = kafka.consumer({ groupId: `bench-bare-${Date.now()}`, maxWaitTimeInMs: 1000 });
+  let seen = 0;
+  let t0 = 0;
+  let t1 = 0;
+  let done!: () => void;
+  const finished = new Promise<void>((res) => (done = res));
+  consumer.on(consumer.events.GROUP_JOIN, () => {
+    if (t0 === 0) t0 = performance.now();
+  });
+  await consumer.connect();
+  await consumer.subscribe({ topics: [topic], fromBeginning: true });
+  await consumer.run({
+    eachBatch: async ({ batch }) => {
+      seen += batch.messages.length;
+      if (seen >= n && t1 === 0) {
+        t1 = performance.now();
+        done();
+      }
+    },
+  });
+  await finished;
+  await consumer.disconnect();
+  return n / ((t1 - t0) / 1000);
+}
+
+async function daemonPipeline(brokers: string[], topic: string, n: number, dir: string): Promise<{ rate: number; checkpoints: string }> {
+  const configPath = join(dir, 'bench.yaml');
+  await writeFile(
+    configPath,
+    [
+      'kafka:',
+      `  brokers: [${brokers.join(', ')}]`,
+      `  groupId: bench-daemon-${Date.now()}`,
+      '  fromBeginning: true',
+      '  topics:',
+      `    - name: ${topic}`,
+      '      decoding:',
+      '        value: { format: json, path: value }',
+      '        key: { from: message_key }',
+      '        time: { from: field, path: ts, unit: ms }',
+      'streams:',
+      '  defaults: { scale: log, unit: milliseconds }',
+      'checkpoint:',
+      `  directory: ${join(dir, 'state')}`,
+      'alerts:',
+      '  sinks: []',
+      'http:',
+      '  listen: 127.0.0.1:0',
+      '',
+    ].join('\n'),
+  );
+  const config = loadOrExplain(configPath, {});
+  const running = await startDaemon(config, pino({ level: 'error' }, pino.destination(2)), (e) => note(`daemon failed: ${e.message}`));
+  // startDaemon resolves once the group is joined and the partition assigned.
+  const t0 = performance.now();
+  const registry = running.registry;
+  while (registry.accepted + [...registry.rejections.values()].reduce((a, b) => a + b, 0) < n) await new Promise((r) => setTimeout(r, 2));
+  const t1 = performance.now();
+  const every = `${config.checkpoint.everyEvents} events or ${config.checkpoint.everySeconds} s`;
+  await running.stop();
+  return { rate: n / ((t1 - t0) / 1000), checkpoints: every };
+}
+
+// -------------------------------------------------------------------------------------------------- memory
+
+function gcFunction(): () => void {
+  setFlagsFromString('--expose-gc');
+  return runInNewContext('gc') as () => void;
+}
+
+type NumberSnapshot = RegistrySnapshot & { monitor: { kind: 'number'; state: MonitorState } };
+
+/** One stream's snapshot, run to the armed state on invented data with default settings on the log scale. */
+function armedSnapshot(): NumberSnapshot {
+  const resolve = defaultResolver('log');
+  const registry = new StreamRegistry({ maxStreams: 1, resolve, onAlert: () => {} });
+  const slot = new EventSlot();
+  for (const r of simulate(buildScenario('latency-stationary', { events: 20_000 }), 3).records()) {
+    if (r.bad !== null) continue;
+    slot.stream = 'proto';
+    slot.ts = r.ts;
+    slot.value = r.value;
+    slot.offset = r.offset;
+    slot.partition = 'p-0';
+    registry.observe(slot);
+  }
+  const snap = registry.snapshot()[0];
+  if (snap.monitor.kind !== 'number' || snap.monitor.state.phase !== 'armed') throw new Error('the prototype monitor is not an armed number monitor after 20 000 events');
+  return { ...snap, monitor: snap.monitor };
+}
+
+/** Growth per stream of rss, of the JS heap, and of the heap plus typed-array buffers (which live outside the heap). */
+function memoryPerStream(gc: () => void, proto: NumberSnapshot, n: number): { rss: number; heap: number; heapAndBuffers: number } {
+  const resolve = defaultResolver('log');
+  gc();
+  gc();
+  const m0 = process.memoryUsage();
+  const registry = new StreamRegistry({ maxStreams: n, resolve, onAlert: () => {} });
+  const block = 10_000;
+  for (let i = 0; i < n; i += block) {
+    const copies: RegistrySnapshot[] = [];
+    for (let j = i; j < Math.min(n, i + block); j++) {
+      const name = `svc-${j}`;
+      copies.push({ ...proto, stream: name, monitor: { kind: 'number', state: { ...proto.monitor.state, stream: name } } });
+    }
+    registry.restore(copies);
+  }
+  gc();
+  gc();
+  const m1 = process.memoryUsage();
+  if (registry.size !== n) throw new Error(`registry holds ${registry.size} streams, expected ${n}`);
+  return {
+    rss: (m1.rss - m0.rss) / n,
+    heap: (m1.heapUsed - m0.heapUsed) / n,
+    heapAndBuffers: (m1.heapUsed + m1.arrayBuffers - m0.heapUsed - m0.arrayBuffers) / n,
+  };
+}
+
+// -------------------------------------------------------------------------------------------------- main
+
+async function main(): Promise<void> {
+  const n = Number(process.env.BENCH_KAFKA_EVENTS ?? 1_000_000);
+  if (!Number.isInteger(n) || n < 1) throw new Error(`BENCH_KAFKA_EVENTS must be a positive integer, got ${process.env.BENCH_KAFKA_EVENTS}`);
+  const gc = gcFunction();
+
+  // Memory first, while the heap is small and no broker client is loaded.
+  const proto = armedSnapshot();
+  const st = proto.monitor.state;
+  const modelBytes = JSON.stringify(st.ref).length + JSON.stringify(st.cur).length;
+  emit({ bench: 'memory/model_state_json_per_stream', value: modelBytes, unit: 'bytes', target: '<= 2048', components: st.cur?.ids.length });
+  emit({ bench: 'memory/monitor_state_json_per_stream', value: JSON.stringify(st).length, unit: 'bytes' });
+  for (const count of [10_000, 100_000]) {
+    const m = memoryPerStream(gc, proto, count);
+    emit({ bench: `memory/rss_per_stream_${count}`, value: Math.round(m.rss), unit: 'bytes' });
+    emit({ bench: `memory/heap_per_stream_${count}`, value: Math.round(m.heap), unit: 'bytes' });
+    emit({ bench: `memory/heap_and_buffers_per_stream_${count}`, value: Math.round(m.heapAndBuffers), unit: 'bytes' });
+  }
+  gc();
+
+  const dir = await mkdtemp(join(tmpdir(), 'modewatch-kafka-bench-'));
+  const broker = await startBroker({ log: note });
+  try {
+    note(`broker: ${broker.how}`);
+    const topic = `bench-events-${Date.now()}`;
+    const tp = performance.now();
+    await produceEvents(broker.brokers, topic, n);
+    note(`produced ${n} events in ${((performance.now() - tp) / 1000).toFixed(1)} s`);
+    const bare = await bareConsumer(broker.brokers, topic, n);
+    emit({ bench: 'kafka/bare_consumer', value: Math.round(bare), unit: 'events/s', events: n });
+    const d = await daemonPipeline(broker.brokers, topic, n, dir);
+    emit({ bench: 'kafka/daemon', value: Math.round(d.rate), unit: 'events/s', events: n, checkpoints: d.checkpoints });
+    emit({ bench: 'kafka/daemon_to_bare_ratio', value: Math.round((d.rate / bare) * 1000) / 1000, unit: 'ratio', target: '>= 0.8' });
+  } finally {
+    await broker.stop();
+    await rm(dir, { recursive: true, force: true });
+  }
+}
+
+if (process.argv[1] !== undefined && import.meta.url === pathToFileURL(process.argv[1]).href) {
+  main().then(
+    () => process.exit(0),
+    (e: unknown) => {
+      console.error(e instanceof Error ? e.message : String(e));
+      process.exit(1);
+    },
+  );
+}
