@@ -13,6 +13,7 @@
  *
  * Rejection order: oversized, missing value (a tombstone), unparseable, time, stream, value (as in records.ts).
  */
+import { FIELD_ABSENT, FIELD_BOOLEAN, FIELD_NULL, FIELD_NUMBER, FIELD_STRING, FlatJsonScanner } from './flat-json.js';
 import { EventSlot, MAX_DIM, type DecodeRejection } from './event.js';
 import { checkEpochMs, parseRfc3339, parseTextNumber, splitCsvLine } from './records.js';
 import type { RawRecord } from './source.js';
@@ -271,12 +272,19 @@ class StreamNames {
   }
 }
 
-export function makeMessageDecoder(config: MessageDecoding): MessageDecoder {
+export interface MessageDecoderOptions {
+  /** Read flat JSON objects without JSON.parse (default true); false forces the general path (tests compare the two). */
+  fastPath?: boolean;
+}
+
+export function makeMessageDecoder(config: MessageDecoding, options: MessageDecoderOptions = {}): MessageDecoder {
   const cfg = validateMessageDecoding(config);
   const maxBytes = cfg.maxBytes ?? 1 << 20;
   const names = new StreamNames(cfg.topic);
   const time = cfg.time ?? { from: 'record' as const };
   const key = cfg.key;
+  let lastKey: Buffer | null = null;
+  let lastKeyStream = '';
 
   const headerText = (r: RawRecord, name: string): string | undefined => {
     const h = r.headers[name];
@@ -295,7 +303,18 @@ export function makeMessageDecoder(config: MessageDecoding): MessageDecoder {
       return null;
     }
     let k: string | undefined;
-    if (key.from === 'message_key') k = r.key === null ? undefined : r.key.toString('utf8');
+    if (key.from === 'message_key') {
+      // Most keys repeat: compare bytes with the last key instead of decoding and interning a string per message.
+      if (r.key !== null && lastKey !== null && r.key.length === lastKey.length && r.key.equals(lastKey)) {
+        out.stream = lastKeyStream;
+        return null;
+      }
+      k = r.key === null ? undefined : r.key.toString('utf8');
+      if (k !== undefined && k.length > 0 && r.key !== null) {
+        lastKey = Buffer.from(r.key);
+        lastKeyStream = names.get(k);
+      }
+    }
     else if (key.from === 'header') k = headerText(r, key.name);
     else return null;
     if (k === undefined || k.length === 0) return 'missing_stream';
@@ -342,15 +361,14 @@ export function makeMessageDecoder(config: MessageDecoding): MessageDecoder {
     };
   }
   if (v.format === 'json') {
-    const paths = (Array.isArray(v.path) ? v.path : [v.path]).map(compilePath);
+    const rawPaths = Array.isArray(v.path) ? v.path : [v.path];
+    const paths = rawPaths.map(compilePath);
     const keyPath = key?.from === 'field' ? compilePath(key.path) : null;
     const timePath = time.from === 'field' ? compilePath(time.path) : null;
-    return (r, out) => {
-      if (r.value === null) return 'missing_field';
-      if (tooLong(r.value, maxBytes)) return 'oversized';
+    const viaParse = (text: string, r: RawRecord, out: EventSlot): DecodeRejection | null => {
       let doc: unknown;
       try {
-        doc = JSON.parse(asText(r.value));
+        doc = JSON.parse(text);
       } catch {
         return 'unparseable';
       }
@@ -363,6 +381,62 @@ export function makeMessageDecoder(config: MessageDecoding): MessageDecoder {
       const sr = keyPath !== null ? innerKey(lookup(doc, keyPath), out) : outerStream(r, out);
       if (sr !== null) return sr;
       return setValues(paths.map((p) => jsonNumber(lookup(doc, p))), out);
+    };
+    // Fast path (src/ingest/flat-json.ts) when every path is one top-level key: most messages are flat objects.
+    const flat = [...paths, ...(keyPath ? [keyPath] : []), ...(timePath ? [timePath] : [])].every((p) => p.length === 1);
+    if (!flat || options.fastPath === false) {
+      return (r, out) => {
+        if (r.value === null) return 'missing_field';
+        if (tooLong(r.value, maxBytes)) return 'oversized';
+        return viaParse(asText(r.value), r, out);
+      };
+    }
+    const nv = paths.length;
+    const keySlot = keyPath !== null ? nv : -1;
+    const timeSlot = timePath !== null ? nv + (keyPath !== null ? 1 : 0) : -1;
+    const scanner = new FlatJsonScanner([...rawPaths, ...(keyPath ? [keyPath[0]] : []), ...(timePath ? [timePath[0]] : [])]);
+    const fieldValue = (text: string, k: number): unknown => {
+      const kind = scanner.kind[k];
+      if (kind === FIELD_NUMBER) return scanner.num[k];
+      if (kind === FIELD_STRING) return text.slice(scanner.start[k], scanner.end[k]);
+      if (kind === FIELD_NULL) return null;
+      if (kind === FIELD_BOOLEAN) return true; // only its type matters: wrong_type
+      return undefined;
+    };
+    return (r, out) => {
+      if (r.value === null) return 'missing_field';
+      if (tooLong(r.value, maxBytes)) return 'oversized';
+      const text = asText(r.value);
+      if (!scanner.scan(text)) return viaParse(text, r, out);
+      let tr: DecodeRejection | null;
+      if (timeSlot >= 0) {
+        if (scanner.kind[timeSlot] === FIELD_NUMBER && time.from === 'field' && time.unit === 'ms') {
+          const ms = scanner.num[timeSlot];
+          if (!checkEpochMs(ms)) tr = 'bad_timestamp';
+          else {
+            out.ts = ms;
+            tr = null;
+          }
+        } else tr = timeValue(fieldValue(text, timeSlot), (time as { unit: TimeUnit }).unit, out);
+      } else if (time.from === 'header') tr = timeValue(headerText(r, time.name), time.unit, out);
+      else tr = recordTime(r, out);
+      if (tr !== null) return tr;
+      const sr = keySlot >= 0 ? innerKey(fieldValue(text, keySlot), out) : outerStream(r, out);
+      if (sr !== null) return sr;
+      if (nv === 1) {
+        const kind = scanner.kind[0];
+        if (kind === FIELD_NUMBER) {
+          const x = scanner.num[0];
+          if (!Number.isFinite(x)) return 'not_finite';
+          out.value = x;
+          out.dim = 1;
+          return null;
+        }
+        return kind === FIELD_ABSENT || kind === FIELD_NULL ? 'missing_field' : 'wrong_type';
+      }
+      const vals: (number | DecodeRejection)[] = [];
+      for (let k = 0; k < nv; k++) vals.push(jsonNumber(fieldValue(text, k)));
+      return setValues(vals, out);
     };
   }
   const cols = Array.isArray(v.column) ? v.column : [v.column];

@@ -24,6 +24,11 @@ const POW10 = [1e0, 1e1, 1e2, 1e3, 1e4, 1e5, 1e6, 1e7, 1e8, 1e9, 1e10, 1e11, 1e1
 /** Index just after the last number scanned by scanJsonNumber. */
 let numEnd = 0;
 
+/** Where the last number scanJsonNumber read ended (for scanners outside this file). */
+export function lastNumberEnd(): number {
+  return numEnd;
+}
+
 /**
  * Scans a JSON number (RFC 8259 section 6 grammar) starting at i, not beyond end. Returns its value and sets
  * numEnd, or returns NaN when the text is not a JSON number there. Exact: the value is m * 10^e computed with
