@@ -68,6 +68,10 @@ export class StreamMonitor implements Monitor {
   private readonly fit = new CusumBank(1);
   private readonly grid = new NoveltyGrid();
   private readonly consts: Float64Array;
+  /** Per reference component: its mean and 1/sd on the model scale, as of the last housekeeping. */
+  private readonly locConsts: Float64Array;
+  /** e^(-λ²/2), the location alternatives' constant factor. */
+  private readonly shiftPenalty: number = 0;
   /** Per reference component, a short moving average of its responsibility: what its weight is right now. */
   private readonly recentShare: Float64Array;
   private readonly surprise = new SurpriseTracker();
@@ -91,6 +95,8 @@ export class StreamMonitor implements Monitor {
     this.owned = new Uint8Array(config.capacity * PER_COMPONENT);
     this.consts = new Float64Array(config.capacity * WEIGHT_CONSTS);
     this.recentShare = new Float64Array(config.capacity);
+    this.locConsts = new Float64Array(2 * config.capacity);
+    this.shiftPenalty = Math.exp(-0.5 * config.locationShiftSds * config.locationShiftSds);
     this.book = new AlertBook(stream, listener);
     this.boot = new Float64Array(config.bootstrapEvents);
     if (config.known !== null) this.startFromKnown();
@@ -188,45 +194,50 @@ export class StreamMonitor implements Monitor {
     let rG = 0;
     for (let j = 0; j < k; j++) rG += ref.responsibility(j);
     const lambda = cfg.locationShiftSds;
-    const shiftPenalty = Math.exp(-0.5 * lambda * lambda);
+    const shiftPenalty = this.shiftPenalty;
     let maxStat = 0;
+    let st = 0;
     const cs = this.consts;
+    const loc = this.locConsts;
     const share = this.recentShare;
     for (let j = 0; j < k; j++) {
       const r = ref.responsibility(j);
       share[j] += RECENT_GAIN * (r - share[j]);
       const c = j * WEIGHT_CONSTS;
       const base = j * PER_COMPONENT;
-      let lz = (lambda * (y - ref.mean(j))) / ref.sd(j);
+      // Location and sd of the reference as of the last housekeeping (at most 256 events old, and fixed while an
+      // alert is active): the statistic still uses only what was known before the event.
+      let lz = lambda * (y - loc[2 * j]) * loc[2 * j + 1];
       if (r < 1e-12 && rG > 1 - 1e-9 && lz < 13 && lz > -13) {
         // The event is plainly another component's: every ratio is its constant for "not this one" (within 1e-9),
         // and the location ratio is 1 (r·e^|λz| < 1e-6). Most events take this path in well-separated mixtures.
-        maxStat = Math.max(
-          maxStat,
-          this.step(base + W_UP, cs[c + C_UP_LB], offset, ts),
-          this.step(base + W_DOWN, cs[c + C_DN_LB], offset, ts),
-          this.step(base + VANISH, cs[c + C_VA_LB], offset, ts),
-          this.step(base + LOC_UP, 0, offset, ts),
-          this.step(base + LOC_DOWN, 0, offset, ts),
-        );
+        st = this.step(base + W_UP, cs[c + C_UP_LB], offset, ts);
+        if (st > maxStat) maxStat = st;
+        st = this.step(base + W_DOWN, cs[c + C_DN_LB], offset, ts);
+        if (st > maxStat) maxStat = st;
+        st = this.step(base + VANISH, cs[c + C_VA_LB], offset, ts);
+        if (st > maxStat) maxStat = st;
+        st = this.step(base + LOC_UP, 0, offset, ts);
+        if (st > maxStat) maxStat = st;
+        st = this.step(base + LOC_DOWN, 0, offset, ts);
+        if (st > maxStat) maxStat = st;
         continue;
       }
       const rOther = rG - r;
-      maxStat = Math.max(
-        maxStat,
-        this.step(base + W_UP, Math.log(1 + r * (cs[c + C_UP_A] - 1) + rOther * (cs[c + C_UP_B] - 1)), offset, ts),
-        this.step(base + W_DOWN, Math.log(1 + r * (cs[c + C_DN_A] - 1) + rOther * (cs[c + C_DN_B] - 1)), offset, ts),
-        this.step(base + VANISH, Math.log(1 + r * (cs[c + C_VA_A] - 1) + rOther * (cs[c + C_VA_B] - 1)), offset, ts),
-      );
+      st = this.step(base + W_UP, Math.log(1 + r * (cs[c + C_UP_A] - 1) + rOther * (cs[c + C_UP_B] - 1)), offset, ts);
+      if (st > maxStat) maxStat = st;
+      st = this.step(base + W_DOWN, Math.log(1 + r * (cs[c + C_DN_A] - 1) + rOther * (cs[c + C_DN_B] - 1)), offset, ts);
+      if (st > maxStat) maxStat = st;
+      st = this.step(base + VANISH, Math.log(1 + r * (cs[c + C_VA_A] - 1) + rOther * (cs[c + C_VA_B] - 1)), offset, ts);
+      if (st > maxStat) maxStat = st;
       // Location: f'(y)/f(y) = exp(±λz - λ²/2) for a shift of ±λ sd; clamp so far events cannot overflow.
       if (lz > 50) lz = 50;
       else if (lz < -50) lz = -50;
       const e = Math.exp(lz);
-      maxStat = Math.max(
-        maxStat,
-        this.step(base + LOC_UP, Math.log(1 + r * (e * shiftPenalty - 1)), offset, ts),
-        this.step(base + LOC_DOWN, Math.log(1 + r * (shiftPenalty / e - 1)), offset, ts),
-      );
+      st = this.step(base + LOC_UP, Math.log(1 + r * (e * shiftPenalty - 1)), offset, ts);
+      if (st > maxStat) maxStat = st;
+      st = this.step(base + LOC_DOWN, Math.log(1 + r * (shiftPenalty / e - 1)), offset, ts);
+      if (st > maxStat) maxStat = st;
     }
     // Fit: standardised surprise, clipped so one wild event cannot decide alone.
     const fitStat = this.fit.step(0, this.surprise.standardized(surprise, FIT_CLIP) - FIT_SLACK, offset, ts);
@@ -535,6 +546,8 @@ export class StreamMonitor implements Monitor {
     const cfg = this.config;
     for (let j = 0; j < ref.k; j++) {
       setWeightAlternatives(this.consts, j * WEIGHT_CONSTS, ref.weight(j), cfg);
+      this.locConsts[2 * j] = ref.mean(j);
+      this.locConsts[2 * j + 1] = 1 / ref.sd(j);
     }
   }
 
@@ -611,6 +624,7 @@ export class StreamMonitor implements Monitor {
       grid: this.grid.exportState(),
       consts: Array.from(this.consts),
       recentShare: Array.from(this.recentShare),
+      locConsts: Array.from(this.locConsts),
       surpriseMean: this.surprise.mean,
       surpriseVar: this.surprise.variance,
       surpriseCount: this.surprise.count,
@@ -643,6 +657,7 @@ export class StreamMonitor implements Monitor {
     m.grid.importState(s.grid);
     m.consts.set(s.consts);
     m.recentShare.set(s.recentShare);
+    m.locConsts.set(s.locConsts);
     m.surprise.mean = s.surpriseMean;
     m.surprise.variance = s.surpriseVar;
     m.surprise.count = s.surpriseCount;
@@ -670,6 +685,7 @@ export interface MonitorState {
   grid: ReturnType<NoveltyGrid['exportState']>;
   consts: number[];
   recentShare: number[];
+  locConsts: number[];
   surpriseMean: number;
   surpriseVar: number;
   surpriseCount: number;

@@ -372,10 +372,17 @@ export class KafkaSource implements Source {
   }
 }
 
+/** Shared by every record without headers (most of them): no object per record for nothing. */
+const NO_HEADERS: Readonly<Record<string, Buffer | string | undefined>> = Object.freeze({});
+
 function toRawRecord(partition: string, topic: string, offset: number, m: KafkaMessage): RawRecord {
-  const headers: Record<string, Buffer | string | undefined> = {};
+  let headers = NO_HEADERS as Record<string, Buffer | string | undefined>;
   if (m.headers) {
-    for (const [k, v] of Object.entries(m.headers)) headers[k] = Array.isArray(v) ? v[0] : v;
+    for (const k in m.headers) {
+      if (headers === NO_HEADERS) headers = {};
+      const v = m.headers[k];
+      headers[k] = Array.isArray(v) ? v[0] : v;
+    }
   }
   return { partition, offset, key: m.key ?? null, value: m.value ?? null, timestamp: Number(m.timestamp), headers, topic };
 }
