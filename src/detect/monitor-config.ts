@@ -69,7 +69,7 @@ export const DEFAULT_MONITOR_CONFIG: MonitorConfig = {
   maxComponents: 4,
   capacity: 8,
   referenceWindow: 20_000,
-  currentWindow: 2000,
+  currentWindow: 8000,
   referenceHalfLifeMs: 0,
   currentHalfLifeMs: 0,
   outlierWeight: 0.002,

@@ -1,6 +1,6 @@
 import { describe, expect, it } from 'vitest';
 import type { AlertTransition } from '../../src/detect/alert.js';
-import { monitorConfig } from '../../src/detect/monitor-config.js';
+import { monitorConfig, type MonitorConfig } from '../../src/detect/monitor-config.js';
 import { VectorStreamMonitor, type VectorMonitorState } from '../../src/detect/vector-monitor.js';
 import { Random } from '../../src/math/random.js';
 
@@ -57,9 +57,9 @@ const SCENARIOS: Record<string, (i: number) => Cluster[]> = {
   location: (i) => (i < CHANGE ? [FAST, SLOW] : [{ ...FAST, mean: [40, 2450] }, SLOW]),
 };
 
-function run(name: string, events: number, seed = 1, outliers = 0) {
+function run(name: string, events: number, seed = 1, outliers = 0, overrides: Partial<MonitorConfig> = {}) {
   const transitions: AlertTransition[] = [];
-  const monitor = new VectorStreamMonitor('req', monitorConfig(), (t) => transitions.push(t));
+  const monitor = new VectorStreamMonitor('req', monitorConfig(overrides), (t) => transitions.push(t));
   let rejected = 0;
   simulate2d(events, seed, SCENARIOS[name], (x, i) => {
     if (monitor.observeVector(x, 2, 1.7e12 + 10 * i, i) !== null) rejected++;
@@ -138,7 +138,8 @@ describe('vector stream monitor on simulated 2-D streams', () => {
   });
 
   it('a shift of the fast cluster along the size axis fires location_shift on that axis', () => {
-    const { transitions, monitor } = run('location', 24_000);
+    // A current window of 2 000 events, so that 4 000 events after the change the current model has followed it.
+    const { transitions, monitor } = run('location', 24_000, 1, 0, { currentWindow: 2000 });
     const a = firstFiring(transitions);
     expect(a.kind).toBe('location_shift');
     expect(a.evidence.statistic).toBe('cusum_location_up_axis1');
