@@ -338,6 +338,14 @@ export class StreamMonitor implements Monitor {
         return;
       }
     }
+    // Beside a reference component whose location statistic is already rising toward it, the excess is that
+    // component moving (a drift), which the location CUSUMs judge, not a new mode.
+    const half = 0.75 * this.config.threshold;
+    for (let j = 0; j < ref.k; j++) {
+      const dz = (cand.mean - ref.mean(j)) / ref.sd(j);
+      if (Math.abs(dz) >= 3) continue;
+      if (this.shifts.value(j * PER_COMPONENT + (dz > 0 ? LOC_UP : LOC_DOWN)) >= half) return;
+    }
     const id = cur.addComponent(cand.mean, cand.sd, cand.excess);
     if (id < 0) return; // at capacity
     const a = this.book.open('mode_emerged', id, SOURCE_BORN, this.accepted, ts, this.emergedEvidence(id, cand.statistic));
@@ -496,7 +504,8 @@ export class StreamMonitor implements Monitor {
     if (cand.excess < 0.25 * this.config.minNewModeWeight) return;
     const ref = this.ref as OnlineMixture1D;
     const cur = this.cur as OnlineMixture1D;
-    for (let j = 0; j < ref.k; j++) if (Math.abs(cand.mean - ref.mean(j)) < 2 * ref.sd(j)) return;
+    // Only a region well away from every component: a bump in the flank of one is its shape, weakly identified.
+    for (let j = 0; j < ref.k; j++) if (Math.abs(cand.mean - ref.mean(j)) < 3 * ref.sd(j)) return;
     const id = ref.addComponent(cand.mean, cand.sd, cand.excess);
     if (id > 0) cur.addComponent(cand.mean, cand.sd, cand.excess, id);
     this.grid.configure(ref, this.config.minNewModeWeight);
