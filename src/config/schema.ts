@@ -8,6 +8,7 @@
  *     clientId: modewatch               # default modewatch
  *     groupId: modewatch                # consumer group; default modewatch
  *     fromBeginning: false              # partitions with no committed offset start at the earliest (true) or latest
+ *     sessionTimeoutMs: 30000           # a daemon silent this long loses its partitions (6000..1800000)
  *     ssl: false                        # TLS to the brokers with the system's CAs
  *     sasl:                             # optional
  *       mechanism: plain                # plain | scram-sha-256 | scram-sha-512
@@ -87,6 +88,8 @@ export interface KafkaConfig {
   clientId: string;
   groupId: string;
   fromBeginning: boolean;
+  /** How long the group waits for a silent member before giving its partitions to another (after a crash, say). */
+  sessionTimeoutMs: number;
   ssl: boolean;
   sasl: SaslConfig | null;
   topics: TopicConfig[];

@@ -23,7 +23,7 @@ export function kafkaConnectionOptions(k: KafkaConfig): KafkaConnectionOptions {
 /** Topics by name or by pattern (the loader refuses a mix). */
 export function kafkaSourceOptions(k: KafkaConfig): KafkaSourceOptions {
   const topics = k.topics.every((t) => t.name !== null) ? k.topics.map((t) => t.name as string) : k.topics.map((t) => t.pattern as RegExp);
-  return { ...kafkaConnectionOptions(k), groupId: k.groupId, topics, fromBeginning: k.fromBeginning };
+  return { ...kafkaConnectionOptions(k), groupId: k.groupId, topics, fromBeginning: k.fromBeginning, sessionTimeoutMs: k.sessionTimeoutMs, heartbeatIntervalMs: Math.max(1000, Math.floor(k.sessionTimeoutMs / 10)) };
 }
 
 /** The topic entry that covers a topic the consumer got records from: by name, else the first matching pattern. */

@@ -121,6 +121,8 @@ export interface DaemonConfigOptions {
   alertTopic?: string;
   maxBytes?: number;
   logLevel?: string;
+  /** Consumer group session timeout; short so that a restart after SIGKILL is not kept waiting by the dead member. */
+  sessionTimeoutMs?: number;
 }
 
 /** A `modewatch run` configuration for JSON records {"ts","value"} keyed by stream (streams `<topic>:<key>`). */
@@ -133,6 +135,7 @@ export function daemonConfigYaml(o: DaemonConfigOptions): string {
     `  clientId: modewatch-test`,
     `  groupId: ${o.groupId}`,
     '  fromBeginning: true',
+    `  sessionTimeoutMs: ${o.sessionTimeoutMs ?? 10_000}`,
     '  topics:',
     `    - name: ${o.topic}`,
     '      decoding:',
