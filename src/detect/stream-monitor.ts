@@ -23,7 +23,8 @@ import type { ValueRejection } from '../math/reject.js';
 import { checkValue, checkValueByCode, scaleCode, toModelByCode, type ScaleCode, type ScaleName } from '../math/scale.js';
 import { OnlineMixture1D } from '../math/stepwise-em1d.js';
 import type { AlertEvidence, AlertKind, ComponentView } from './alert.js';
-import { AlertBook, type ActiveAlert, type TransitionListener } from './alert-book.js';
+import type { ActiveAlert, TransitionListener } from './alert-book.js';
+import { AlertDesk } from './alert-desk.js';
 import { fmt, pct } from './evidence-text.js';
 import { SurpriseTracker } from './surprise.js';
 import { C_DN_A, C_DN_B, C_DN_LB, C_UP_A, C_UP_B, C_UP_LB, C_VA_A, C_VA_B, C_VA_LB, WEIGHT_CONSTS, setWeightAlternatives } from './weight-alternatives.js';
@@ -42,11 +43,6 @@ const PER_COMPONENT = 5;
 const STAT_NAMES = ['cusum_weight_up', 'cusum_weight_down', 'cusum_weight_vanish', 'cusum_location_up', 'cusum_location_down'];
 const STAT_KINDS: AlertKind[] = ['weight_shift', 'weight_shift', 'mode_vanished', 'location_shift', 'location_shift'];
 
-
-/** Alert sources that are not a CUSUM index. */
-const SOURCE_FIT = -1;
-const SOURCE_BORN = -2;
-
 const HOUSEKEEPING_EVERY = 256;
 /** Gain of the moving average of each component's responsibility (about the last 64 events). */
 const RECENT_GAIN = 1 / 64;
@@ -64,7 +60,6 @@ export class StreamMonitor implements Monitor {
   private ref: OnlineMixture1D | null = null;
   private cur: OnlineMixture1D | null = null;
   private readonly shifts: CusumBank;
-  private readonly owned: Uint8Array;
   private readonly fit = new CusumBank(1);
   private readonly grid = new NoveltyGrid();
   private readonly consts: Float64Array;
@@ -79,9 +74,7 @@ export class StreamMonitor implements Monitor {
   private armedAt = 0;
   private lastTs = 0;
   private lastOffset = -1;
-  private readonly book: AlertBook;
-  private pendingCount = 0;
-  private readonly quarterThreshold: number = 0;
+  private readonly desk: AlertDesk;
   /** The scale as a number: the per-event path compares numbers, not strings. */
   private scaleCode: ScaleCode = 0;
 
@@ -90,14 +83,31 @@ export class StreamMonitor implements Monitor {
     this.config = config;
     this.scaleName = config.scale === 'auto' ? 'identity' : config.scale;
     this.scaleCode = scaleCode(this.scaleName);
-    this.quarterThreshold = 0.25 * config.threshold;
     this.shifts = new CusumBank(config.capacity * PER_COMPONENT);
-    this.owned = new Uint8Array(config.capacity * PER_COMPONENT);
     this.consts = new Float64Array(config.capacity * WEIGHT_CONSTS);
     this.recentShare = new Float64Array(config.capacity);
     this.locConsts = new Float64Array(2 * config.capacity);
     this.shiftPenalty = Math.exp(-0.5 * config.locationShiftSds * config.locationShiftSds);
-    this.book = new AlertBook(stream, listener);
+    this.desk = new AlertDesk(stream, listener, config.capacity * PER_COMPONENT, config, this.shifts, this.fit, {
+      kindOf: (i) => STAT_KINDS[i % PER_COMPONENT],
+      componentOf: (i) => (this.ref as OnlineMixture1D).id(Math.floor(i / PER_COMPONENT)),
+      isVanish: (i) => i % PER_COMPONENT === VANISH,
+      // A mode has vanished only if it is (nearly) absent from the last events, not merely rarer: under a large
+      // weight shift the vanish statistic, whose alternative is far from the truth, can cross on a short run of luck.
+      vetoOpen: (i) => {
+        const j = Math.floor(i / PER_COMPONENT);
+        return i % PER_COMPONENT === VANISH && this.recentShare[j] > 2 * this.config.vanishFraction * (this.ref as OnlineMixture1D).weight(j);
+      },
+      shiftEvidence: (i, prev) => this.shiftEvidence(i, prev),
+      fitEvidence: (prev) => this.fitEvidence(prev),
+      confirmBorn: (a) => {
+        const cur = this.cur as OnlineMixture1D;
+        const j = cur.indexOf(a.componentId ?? -1);
+        if (j >= 0 && cur.weight(j) >= 0.5 * this.config.minNewModeWeight) return this.emergedEvidence(a.componentId ?? -1, a.evidence.value, a.evidence);
+        if (j >= 0) cur.removeComponent(j);
+        return null;
+      },
+    });
     this.boot = new Float64Array(config.bootstrapEvents);
     if (config.known !== null) this.startFromKnown();
   }
@@ -121,7 +131,7 @@ export class StreamMonitor implements Monitor {
     return this.lastTs;
   }
   alerts(): ActiveAlert[] {
-    return this.book.list();
+    return this.desk.book.list();
   }
 
   /** Log-likelihood per event of recent quiet events under the reference (nats, model scale), or null before warm-up. */
@@ -241,79 +251,24 @@ export class StreamMonitor implements Monitor {
     }
     // Fit: standardised surprise, clipped so one wild event cannot decide alone.
     const fitStat = this.fit.step(0, this.surprise.standardized(surprise, FIT_CLIP) - FIT_SLACK, offset, ts);
-    if (fitStat >= cfg.fitThreshold && this.fitOwnerless()) this.openFit(ts);
+    if (fitStat >= cfg.fitThreshold && this.desk.book.get(this.desk.book.key('poor_fit', null)) === undefined) this.desk.openFit(this.accepted, ts);
 
     const bin = this.grid.step(y, offset, ts, h);
     if (bin >= 0) this.onNovelty(bin, ts, offset);
 
-    if (this.pendingCount > 0) this.confirmPending(ts, offset);
-    return maxStat < 0.5 * h && fitStat < 0.5 * cfg.fitThreshold && this.book.size === 0;
+    if (this.desk.pendingCount > 0) this.desk.confirm(this.accepted, ts, offset);
+    return maxStat < 0.5 * h && fitStat < 0.5 * cfg.fitThreshold && this.desk.book.size === 0;
   }
 
-  /** One CUSUM step; opens an alert on a crossing, resolves or caps one that is active. */
+  /** One CUSUM step; the desk opens an alert on a crossing, resolves or caps one that is active. */
   private step(i: number, llr: number, offset: number, ts: number): number {
     const s = this.shifts.step(i, llr, offset, ts);
     // Small enough to inline: the rest only matters near the threshold or for a statistic an alert owns.
-    if (s >= this.quarterThreshold || this.owned[i] !== 0) this.afterStep(i, s, offset, ts);
+    if (this.desk.needsAttention(i, s)) this.desk.afterStep(i, s, this.accepted, ts, offset);
     return s;
   }
 
-  private afterStep(i: number, s: number, offset: number, ts: number): void {
-    const h = this.config.threshold;
-    const o = this.owned[i];
-    if (o !== 0) {
-      // 1: an alert owns it; 2: it crossed while suppressed. Either way it is capped so it can come back down.
-      if (s < 0.25 * h) {
-        if (o === 1) this.resolveOwned(i, ts, offset);
-        else this.owned[i] = 0;
-      } else this.shifts.cap(i, 2 * h);
-    } else if (s >= h) this.openShift(i, ts);
-  }
-
-  private fitOwnerless(): boolean {
-    return this.book.get(this.book.key('poor_fit', null)) === undefined;
-  }
-
   // ---- alerts (rare: allocation is fine here) ----
-
-  private openShift(i: number, ts: number): void {
-    const ref = this.ref as OnlineMixture1D;
-    const j = Math.floor(i / PER_COMPONENT);
-    const type = i % PER_COMPONENT;
-    const kind = STAT_KINDS[type];
-    const id = ref.id(j);
-    // Suppressed: the other direction already owns the alert, or the stream has an active alert and
-    // further shifts are mostly its consequences (the reference is frozen against a changed stream);
-    // only a vanishing mode is still worth an alert of its own.
-    if (this.book.get(this.book.key(kind, id)) !== undefined || (type !== VANISH && this.book.size > 0)) {
-      this.owned[i] = 2;
-      return;
-    }
-    // A mode has vanished only if it is (nearly) absent from the last events, not merely rarer: under a large weight
-    // shift the vanish statistic, whose alternative is far from the truth, can cross on a short run of luck.
-    if (type === VANISH && this.recentShare[j] > 2 * this.config.vanishFraction * ref.weight(j)) {
-      this.shifts.reset(i);
-      return;
-    }
-    // A vanishing component also shows as a weight decrease: the more specific alert wins.
-    if (type === VANISH) {
-      const ws = this.book.get(this.book.key('weight_shift', id));
-      if (ws !== undefined && ws.state === 'pending') {
-        this.owned[ws.source] = 0;
-        this.pendingCount--;
-        this.book.cancel(ws);
-      }
-    }
-    this.owned[i] = 1;
-    this.pendingCount++;
-    this.book.open(kind, id, i, this.accepted, ts, this.shiftEvidence(i));
-  }
-
-  private openFit(ts: number): void {
-    if (this.book.size > 0) return; // another alert already explains the misfit
-    this.pendingCount++;
-    this.book.open('poor_fit', null, SOURCE_FIT, this.accepted, ts, this.fitEvidence());
-  }
 
   private onNovelty(bin: number, ts: number, offset: number): void {
     const cand = this.grid.candidate(bin);
@@ -325,7 +280,7 @@ export class StreamMonitor implements Monitor {
     // Not new if a component born earlier already sits there (a mode in the making). While the stream
     // has an active alert the reference is frozen against a changed stream, so a candidate must also be
     // unexplained by the current model.
-    const busy = this.book.size > 0;
+    const busy = this.desk.book.size > 0;
     for (let j = 0; j < cur.k; j++) {
       const near = Math.abs(cand.mean - cur.mean(j)) / cur.sd(j);
       if (near < (busy ? 3 : ref.indexOf(cur.id(j)) < 0 ? 2 : 0)) return;
@@ -348,50 +303,8 @@ export class StreamMonitor implements Monitor {
     }
     const id = cur.addComponent(cand.mean, cand.sd, cand.excess);
     if (id < 0) return; // at capacity
-    const a = this.book.open('mode_emerged', id, SOURCE_BORN, this.accepted, ts, this.emergedEvidence(id, cand.statistic));
-    a.evidence.firstEvidenceOffset = cand.firstOffset;
-    a.evidence.firstEvidenceTs = cand.firstTs;
-    a.startsAt = cand.firstTs;
-    this.pendingCount++;
+    this.desk.openBorn(id, this.accepted, ts, this.emergedEvidence(id, cand.statistic), cand.firstTs, cand.firstOffset);
     void offset;
-  }
-
-  private confirmPending(ts: number, offset: number): void {
-    const h = this.config.threshold;
-    for (const a of this.book.list()) {
-      if (a.state !== 'pending' || this.accepted - a.pendingAt < this.config.confirmEvents) continue;
-      this.pendingCount--;
-      if (a.source >= 0) {
-        if (this.shifts.value(a.source) >= h) this.book.fire(a, this.accepted, ts, offset, this.shiftEvidence(a.source, a.evidence));
-        else {
-          this.owned[a.source] = 0;
-          this.book.cancel(a);
-        }
-      } else if (a.source === SOURCE_FIT) {
-        if (this.fit.value(0) >= this.config.fitThreshold) this.book.fire(a, this.accepted, ts, offset, this.fitEvidence(a.evidence));
-        else this.book.cancel(a);
-      } else {
-        const cur = this.cur as OnlineMixture1D;
-        const j = cur.indexOf(a.componentId ?? -1);
-        if (j >= 0 && cur.weight(j) >= 0.5 * this.config.minNewModeWeight) {
-          this.book.fire(a, this.accepted, ts, offset, this.emergedEvidence(a.componentId ?? -1, a.evidence.value, a.evidence));
-        } else {
-          if (j >= 0) cur.removeComponent(j);
-          this.book.cancel(a);
-        }
-      }
-    }
-  }
-
-  private resolveOwned(i: number, ts: number, offset: number): void {
-    this.owned[i] = 0;
-    for (const a of this.book.list()) {
-      if (a.source !== i) continue;
-      if (a.state === 'pending') {
-        this.pendingCount--;
-        this.book.cancel(a);
-      } else this.book.resolve(a, ts, offset, 'recovered', this.shiftEvidence(i, a.evidence));
-    }
   }
 
   // ---- evidence ----
@@ -543,7 +456,7 @@ export class StreamMonitor implements Monitor {
   private resetDetectors(): void {
     const ref = this.ref as OnlineMixture1D;
     this.shifts.resetAll();
-    this.owned.fill(0);
+    this.desk.releaseAll();
     this.fit.resetAll();
     this.grid.configure(ref, this.config.minNewModeWeight);
     this.computeConsts();
@@ -570,11 +483,7 @@ export class StreamMonitor implements Monitor {
       if (cur.weight(j) < pruneBelow) {
         const id = cur.id(j);
         cur.removeComponent(j);
-        const a = this.book.get(this.book.key('mode_emerged', id));
-        if (a !== undefined) {
-          if (a.state === 'pending') this.pendingCount--;
-          this.book.resolve(a, ts, offset, 'recovered', this.emergedEvidence(id, 0, a.evidence));
-        }
+        this.desk.resolveBorn(id, ts, offset, (prev) => this.emergedEvidence(id, 0, prev));
       }
     }
     // Merge components of the current model that have come to overlap.
@@ -593,14 +502,7 @@ export class StreamMonitor implements Monitor {
       this.grid.refreshRates(this.ref as OnlineMixture1D, cfg.minNewModeWeight);
     }
     // Absorb a change that has been firing long enough: it is the new normal.
-    for (const a of this.book.list()) {
-      if (a.state !== 'firing') continue;
-      const long = this.accepted - a.firingAt >= cfg.absorbAfterEvents || (cfg.absorbAfterMs > 0 && ts - a.firingTs >= cfg.absorbAfterMs);
-      if (long) {
-        this.absorb(ts, offset, 'absorbed');
-        break;
-      }
-    }
+    if (this.desk.dueForAbsorb(this.accepted, ts)) this.absorb(ts, offset, 'absorbed');
   }
 
   private absorb(ts: number, offset: number, resolution: 'absorbed' | 'rebaselined'): void {
@@ -608,11 +510,7 @@ export class StreamMonitor implements Monitor {
     const refOpts = this.modelOptions(this.config.referenceWindow, this.config.referenceHalfLifeMs);
     const state = cur.exportState();
     this.ref = OnlineMixture1D.importState({ ...state, options: { ...state.options, ...refOpts }, t: Math.max(state.t, this.accepted) });
-    for (const a of this.book.list()) {
-      if (a.state === 'pending') this.book.cancel(a);
-      else this.book.resolve(a, ts, offset, resolution, { ...a.evidence, before: this.views(this.ref), after: this.views(this.cur) });
-    }
-    this.pendingCount = 0;
+    this.desk.resolveAll(ts, offset, resolution, (a) => ({ ...a.evidence, before: this.views(this.ref), after: this.views(this.cur) }));
     if (this.phase === 'armed') this.resetDetectors();
   }
 
@@ -628,7 +526,6 @@ export class StreamMonitor implements Monitor {
       ref: this.ref === null ? null : this.ref.exportState(),
       cur: this.cur === null ? null : this.cur.exportState(),
       shifts: this.shifts.exportState(),
-      owned: Array.from(this.owned),
       fit: this.fit.exportState(),
       grid: this.grid.exportState(),
       consts: Array.from(this.consts),
@@ -641,8 +538,7 @@ export class StreamMonitor implements Monitor {
       armedAt: this.armedAt,
       lastTs: this.lastTs,
       lastOffset: this.lastOffset,
-      pendingCount: this.pendingCount,
-      alerts: this.book.exportState(),
+      ...this.desk.exportState(),
     };
   }
 
@@ -661,7 +557,6 @@ export class StreamMonitor implements Monitor {
     m.ref = s.ref === null ? null : OnlineMixture1D.importState(s.ref);
     m.cur = s.cur === null ? null : OnlineMixture1D.importState(s.cur);
     m.shifts.importState(s.shifts);
-    m.owned.set(s.owned);
     m.fit.importState(s.fit);
     m.grid.importState(s.grid);
     m.consts.set(s.consts);
@@ -674,8 +569,7 @@ export class StreamMonitor implements Monitor {
     m.armedAt = s.armedAt;
     m.lastTs = s.lastTs;
     m.lastOffset = s.lastOffset;
-    m.pendingCount = s.pendingCount;
-    m.book.importState(s.alerts);
+    m.desk.importState(s);
     return m;
   }
 }
