@@ -35,7 +35,8 @@
  */
 import { MV_MAX_DIM, MvMixture, OnlineMvMixture, mvToJSON, onlineMvFromJSON, selectMvMixture, type OnlineMvDocument } from '../math/mv/index.js';
 import type { AlertEvidence, AlertKind, ComponentView } from './alert.js';
-import { AlertBook, type ActiveAlert, type TransitionListener } from './alert-book.js';
+import type { ActiveAlert, TransitionListener } from './alert-book.js';
+import { AlertDesk } from './alert-desk.js';
 import { fmt, pct } from './evidence-text.js';
 import { SurpriseTracker } from './surprise.js';
 import { C_DN_A, C_DN_B, C_DN_LB, C_UP_A, C_UP_B, C_UP_LB, C_VA_A, C_VA_B, C_VA_LB, WEIGHT_CONSTS, setWeightAlternatives } from './weight-alternatives.js';
@@ -52,8 +53,6 @@ const LOC = 3;
 const PER_COMPONENT = LOC + 2 * MV_MAX_DIM;
 
 
-const SOURCE_FIT = -1;
-const SOURCE_BORN = -2;
 
 const HOUSEKEEPING_EVERY = 256;
 const FIT_SLACK = 0.5;
@@ -86,7 +85,6 @@ export class VectorStreamMonitor {
   private readonly curIds: Int32Array;
   private nextId = 1;
   private readonly shifts: CusumBank;
-  private readonly owned: Uint8Array;
   private readonly fit = new CusumBank(1);
   private novelty: VectorNovelty | null = null;
   private readonly consts: Float64Array;
@@ -103,8 +101,7 @@ export class VectorStreamMonitor {
   private accepted = 0;
   private lastTs = 0;
   private lastOffset = -1;
-  private readonly book: AlertBook;
-  private pendingCount = 0;
+  private readonly desk: AlertDesk;
   // scratch (sized at the first event)
   private xv = new Float64Array(0);
   private resp = new Float64Array(0);
@@ -118,11 +115,24 @@ export class VectorStreamMonitor {
     this.refIds = new Int32Array(config.capacity);
     this.curIds = new Int32Array(config.capacity);
     this.shifts = new CusumBank(config.capacity * PER_COMPONENT);
-    this.owned = new Uint8Array(config.capacity * PER_COMPONENT);
     this.consts = new Float64Array(config.capacity * WEIGHT_CONSTS);
     this.locSd = new Float64Array(config.capacity * MV_MAX_DIM);
     this.locPen = new Float64Array(config.capacity * MV_MAX_DIM);
-    this.book = new AlertBook(stream, listener);
+    this.desk = new AlertDesk(stream, listener, config.capacity * PER_COMPONENT, config, this.shifts, this.fit, {
+      kindOf: (i) => statKind(i % PER_COMPONENT),
+      componentOf: (i) => this.refIds[Math.floor(i / PER_COMPONENT)],
+      isVanish: (i) => i % PER_COMPONENT === VANISH,
+      vetoOpen: () => false,
+      shiftEvidence: (i, prev) => this.shiftEvidence(i, prev),
+      fitEvidence: (prev) => this.fitEvidence(prev),
+      confirmBorn: (a) => {
+        const cur = this.cur as OnlineMvMixture;
+        const j = indexOf(this.curIds, cur.k, a.componentId ?? -1);
+        if (j >= 0 && cur.mixture.weights[j] >= 0.5 * this.config.minNewModeWeight) return this.emergedEvidence(a.componentId ?? -1, a.evidence.value, a.evidence);
+        if (j >= 0 && cur.k > 1) this.removeCurrent(j);
+        return null;
+      },
+    });
   }
 
   /** Dimension fixed by the first event (0 before it). */
@@ -146,7 +156,7 @@ export class VectorStreamMonitor {
     return this.cur === null ? null : this.cur.mixture;
   }
   alerts(): ActiveAlert[] {
-    return this.book.list();
+    return this.desk.book.list();
   }
 
   /** Largest statistic over its threshold (>= 1 means some detector is over threshold). */
@@ -262,13 +272,13 @@ export class VectorStreamMonitor {
     }
     // Fit: standardised surprise, clipped so one wild event cannot decide alone.
     const fitStat = this.fit.step(0, this.surprise.standardized(surprise, FIT_CLIP) - FIT_SLACK, offset, ts);
-    if (fitStat >= cfg.fitThreshold && this.book.get(this.book.key('poor_fit', null)) === undefined) this.openFit(ts);
+    if (fitStat >= cfg.fitThreshold && this.desk.book.get(this.desk.book.key('poor_fit', null)) === undefined) this.desk.openFit(this.accepted, ts);
 
     const cand = this.tagAndSearch(novelSurprise, ts, offset);
     if (cand !== null && cand.statistic >= h) this.onNovelty(cand, ts);
 
-    if (this.pendingCount > 0) this.confirmPending(ts, offset);
-    return maxStat < 0.5 * h && fitStat < 0.5 * cfg.fitThreshold && this.book.size === 0;
+    if (this.desk.pendingCount > 0) this.desk.confirm(this.accepted, ts, offset);
+    return maxStat < 0.5 * h && fitStat < 0.5 * cfg.fitThreshold && this.desk.book.size === 0;
   }
 
   /**
@@ -307,18 +317,10 @@ export class VectorStreamMonitor {
     for (let i = 0; i < d; i++) u[i] = lambda * u[i] * this.locSd[j * MV_MAX_DIM + i];
   }
 
-  /** One CUSUM step; opens an alert on a crossing, resolves or caps one that is active. */
+  /** One CUSUM step; the desk opens an alert on a crossing, resolves or caps one that is active. */
   private step(i: number, llr: number, offset: number, ts: number): number {
-    const h = this.config.threshold;
     const s = this.shifts.step(i, llr, offset, ts);
-    const o = this.owned[i];
-    if (o !== 0) {
-      // 1: an alert owns it; 2: it crossed while suppressed. Either way it is capped so it can come back down.
-      if (s < 0.25 * h) {
-        if (o === 1) this.resolveOwned(i, ts, offset);
-        else this.owned[i] = 0;
-      } else this.shifts.cap(i, 2 * h);
-    } else if (s >= h) this.openShift(i, ts);
+    if (this.desk.needsAttention(i, s)) this.desk.afterStep(i, s, this.accepted, ts, offset);
     return s;
   }
 
@@ -342,42 +344,10 @@ export class VectorStreamMonitor {
 
   // ---- alerts (rare: allocation is fine here) ----
 
-  private openShift(i: number, ts: number): void {
-    const j = Math.floor(i / PER_COMPONENT);
-    const type = i % PER_COMPONENT;
-    const kind = statKind(type);
-    const id = this.refIds[j];
-    // Suppressed: another statistic already owns the alert, or the stream has an active alert and further
-    // shifts are mostly its consequences (the reference is frozen against a changed stream); only a
-    // vanishing mode is still worth an alert of its own.
-    if (this.book.get(this.book.key(kind, id)) !== undefined || (type !== VANISH && this.book.size > 0)) {
-      this.owned[i] = 2;
-      return;
-    }
-    // A vanishing component also shows as a weight decrease: the more specific alert wins.
-    if (type === VANISH) {
-      const ws = this.book.get(this.book.key('weight_shift', id));
-      if (ws !== undefined && ws.state === 'pending') {
-        this.owned[ws.source] = 0;
-        this.pendingCount--;
-        this.book.cancel(ws);
-      }
-    }
-    this.owned[i] = 1;
-    this.pendingCount++;
-    this.book.open(kind, id, i, this.accepted, ts, this.shiftEvidence(i));
-  }
-
-  private openFit(ts: number): void {
-    if (this.book.size > 0) return; // another alert already explains the misfit
-    this.pendingCount++;
-    this.book.open('poor_fit', null, SOURCE_FIT, this.accepted, ts, this.fitEvidence());
-  }
-
   private onNovelty(cand: VectorCandidate, ts: number): void {
     const ref = this.ref as OnlineMvMixture;
     const nov = this.novelty as VectorNovelty;
-    const busy = this.book.size > 0;
+    const busy = this.desk.book.size > 0;
     // Not new if a component born earlier already sits there (a mode in the making); while the stream has
     // an active alert the reference is frozen against a changed stream, so a candidate must also be
     // unexplained by the current model.
@@ -390,7 +360,7 @@ export class VectorStreamMonitor {
     for (let j = 0; j < ref.k; j++) {
       const near = mahalanobis2(ref.mixture, j, cand.mean);
       // A component whose location is shifting leaves a cluster of its events just beside it: that is its shift.
-      const shifting = this.book.list().some((a) => a.kind === 'location_shift' && a.componentId === this.refIds[j]);
+      const shifting = this.desk.book.list().some((a) => a.kind === 'location_shift' && a.componentId === this.refIds[j]);
       if (shifting && near < 16) return nov.consumeMembers();
       // Inside a reference component it is that component gaining weight, which the weight CUSUMs judge.
       // A reference component the current model had lost comes back under its own id, without an alert.
@@ -407,50 +377,8 @@ export class VectorStreamMonitor {
     cur = withComponent(cur, cand.mean, cand.cov, Math.max(cand.weight, this.config.minNewModeWeight));
     this.curIds[cur.k - 1] = id;
     this.cur = cur;
-    const a = this.book.open('mode_emerged', id, SOURCE_BORN, this.accepted, ts, this.emergedEvidence(id, cand.statistic));
-    a.evidence.firstEvidenceOffset = cand.firstOffset;
-    a.evidence.firstEvidenceTs = cand.firstTs;
-    a.startsAt = cand.firstTs;
-    this.pendingCount++;
+    this.desk.openBorn(id, this.accepted, ts, this.emergedEvidence(id, cand.statistic), cand.firstTs, cand.firstOffset);
     nov.consumeMembers();
-  }
-
-  private confirmPending(ts: number, offset: number): void {
-    const h = this.config.threshold;
-    for (const a of this.book.list()) {
-      if (a.state !== 'pending' || this.accepted - a.pendingAt < this.config.confirmEvents) continue;
-      this.pendingCount--;
-      if (a.source >= 0) {
-        if (this.shifts.value(a.source) >= h) this.book.fire(a, this.accepted, ts, offset, this.shiftEvidence(a.source, a.evidence));
-        else {
-          this.owned[a.source] = 0;
-          this.book.cancel(a);
-        }
-      } else if (a.source === SOURCE_FIT) {
-        if (this.fit.value(0) >= this.config.fitThreshold) this.book.fire(a, this.accepted, ts, offset, this.fitEvidence(a.evidence));
-        else this.book.cancel(a);
-      } else {
-        const cur = this.cur as OnlineMvMixture;
-        const j = indexOf(this.curIds, cur.k, a.componentId ?? -1);
-        if (j >= 0 && cur.mixture.weights[j] >= 0.5 * this.config.minNewModeWeight) {
-          this.book.fire(a, this.accepted, ts, offset, this.emergedEvidence(a.componentId ?? -1, a.evidence.value, a.evidence));
-        } else {
-          if (j >= 0 && cur.k > 1) this.removeCurrent(j);
-          this.book.cancel(a);
-        }
-      }
-    }
-  }
-
-  private resolveOwned(i: number, ts: number, offset: number): void {
-    this.owned[i] = 0;
-    for (const a of this.book.list()) {
-      if (a.source !== i) continue;
-      if (a.state === 'pending') {
-        this.pendingCount--;
-        this.book.cancel(a);
-      } else this.book.resolve(a, ts, offset, 'recovered', this.shiftEvidence(i, a.evidence));
-    }
   }
 
   // ---- read-outs and evidence ----
@@ -649,7 +577,7 @@ export class VectorStreamMonitor {
 
   private resetDetectors(): void {
     this.shifts.resetAll();
-    this.owned.fill(0);
+    this.desk.releaseAll();
     this.fit.resetAll();
     (this.novelty as VectorNovelty).clear(this.accepted);
     this.computeConsts();
@@ -732,11 +660,7 @@ export class VectorStreamMonitor {
       if ((this.cur as OnlineMvMixture).mixture.weights[j] < pruneBelow) {
         const id = this.curIds[j];
         this.removeCurrent(j);
-        const a = this.book.get(this.book.key('mode_emerged', id));
-        if (a !== undefined) {
-          if (a.state === 'pending') this.pendingCount--;
-          this.book.resolve(a, ts, offset, 'recovered', this.emergedEvidence(id, 0, a.evidence));
-        }
+        this.desk.resolveBorn(id, ts, offset, (prev) => this.emergedEvidence(id, 0, prev));
       }
     }
     // Merge components of the current model that have come to overlap (one merge per pass).
@@ -756,14 +680,7 @@ export class VectorStreamMonitor {
     if (this.phase !== 'armed') return;
     if (quiet) this.computeConsts();
     // Absorb a change that has been firing long enough: it is the new normal.
-    for (const a of this.book.list()) {
-      if (a.state !== 'firing') continue;
-      const long = this.accepted - a.firingAt >= cfg.absorbAfterEvents || (cfg.absorbAfterMs > 0 && ts - a.firingTs >= cfg.absorbAfterMs);
-      if (long) {
-        this.absorb(ts, offset, 'absorbed');
-        break;
-      }
-    }
+    if (this.desk.dueForAbsorb(this.accepted, ts)) this.absorb(ts, offset, 'absorbed');
   }
 
   private absorb(ts: number, offset: number, resolution: 'absorbed' | 'rebaselined'): void {
@@ -771,11 +688,7 @@ export class VectorStreamMonitor {
     const ref = this.ref as OnlineMvMixture;
     this.ref = withSettings(cur, { ...cur.settings, gammaMin: ref.settings.gammaMin }, Math.max(cur.stepCount, this.accepted));
     this.refIds.set(this.curIds);
-    for (const a of this.book.list()) {
-      if (a.state === 'pending') this.book.cancel(a);
-      else this.book.resolve(a, ts, offset, resolution, { ...a.evidence, before: this.views(this.reference), after: this.views(this.current) });
-    }
-    this.pendingCount = 0;
+    this.desk.resolveAll(ts, offset, resolution, (a) => ({ ...a.evidence, before: this.views(this.reference), after: this.views(this.current) }));
     if (this.phase === 'armed') this.resetDetectors();
     else this.computeConsts();
   }
@@ -795,7 +708,6 @@ export class VectorStreamMonitor {
       curIds: Array.from(this.curIds),
       nextId: this.nextId,
       shifts: this.shifts.exportState(),
-      owned: Array.from(this.owned),
       fit: this.fit.exportState(),
       novelty: this.novelty === null ? null : this.novelty.exportState(),
       consts: Array.from(this.consts),
@@ -811,8 +723,7 @@ export class VectorStreamMonitor {
       accepted: this.accepted,
       lastTs: this.lastTs,
       lastOffset: this.lastOffset,
-      pendingCount: this.pendingCount,
-      alerts: this.book.exportState(),
+      ...this.desk.exportState(),
     };
   }
 
@@ -831,7 +742,6 @@ export class VectorStreamMonitor {
     m.curIds.set(s.curIds);
     m.nextId = s.nextId;
     m.shifts.importState(s.shifts);
-    m.owned.set(s.owned);
     m.fit.importState(s.fit);
     if (s.novelty !== null && m.novelty !== null) m.novelty.importState(s.novelty);
     m.consts.set(s.consts);
@@ -847,8 +757,7 @@ export class VectorStreamMonitor {
     m.accepted = s.accepted;
     m.lastTs = s.lastTs;
     m.lastOffset = s.lastOffset;
-    m.pendingCount = s.pendingCount;
-    m.book.importState(s.alerts);
+    m.desk.importState(s);
     return m;
   }
 }
