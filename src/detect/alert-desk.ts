@@ -4,7 +4,7 @@
  * precedence of a vanishing mode over a weight decrease. The monitors supply what differs between them (the
  * meaning of each statistic and the evidence) through DeskHooks.
  */
-import type { AlertEvidence, AlertKind } from './alert.js';
+import type { AlertEvidence, AlertKind, ComponentView } from './alert.js';
 import { AlertBook, type ActiveAlert, type TransitionListener } from './alert-book.js';
 import type { CusumBank } from './cusum-bank.js';
 import type { MonitorConfig } from './monitor-config.js';
@@ -27,7 +27,8 @@ export interface DeskHooks {
   /** A veto at the crossing (the statistic restarts): e.g. a vanish the component's recent share contradicts. */
   vetoOpen(i: number): boolean;
   shiftEvidence(i: number, prev?: AlertEvidence): AlertEvidence;
-  fitEvidence(prev?: AlertEvidence): AlertEvidence;
+  /** The components now: reference (before) and current (after), as operators read them. */
+  models(): { before: ComponentView[]; after: ComponentView[] };
   /** A born component's alert at its confirmation: the evidence to fire with, or null to drop it. */
   confirmBorn(a: ActiveAlert): AlertEvidence | null;
 }
@@ -114,7 +115,7 @@ export class AlertDesk {
   openFit(eventCount: number, ts: number): void {
     if (this.book.size > 0) return;
     this.pendingCount++;
-    this.book.open('poor_fit', null, SOURCE_FIT, eventCount, ts, this.hooks.fitEvidence());
+    this.book.open('poor_fit', null, SOURCE_FIT, eventCount, ts, this.fitEvidence());
   }
 
   /** A component was born: mode_emerged goes pending, its start at the first evidence. */
@@ -139,7 +140,7 @@ export class AlertDesk {
           this.book.cancel(a);
         }
       } else if (a.source === SOURCE_FIT) {
-        if (this.fit.value(0) >= this.config.fitThreshold) this.book.fire(a, eventCount, ts, offset, this.hooks.fitEvidence(a.evidence));
+        if (this.fit.value(0) >= this.config.fitThreshold) this.book.fire(a, eventCount, ts, offset, this.fitEvidence(a.evidence));
         else this.book.cancel(a);
       } else {
         const ev = this.hooks.confirmBorn(a);
@@ -174,6 +175,31 @@ export class AlertDesk {
       if (this.config.absorbAfterMs > 0 && ts - a.firingTs >= this.config.absorbAfterMs) return true;
     }
     return false;
+  }
+
+  /** An alert's evidence, with the components before (reference) and after (current) as they are now. */
+  evidence(statistic: string, value: number, threshold: number, componentId: number | null, firstTs: number, firstOffset: number, summary: string): AlertEvidence {
+    const { before, after } = this.hooks.models();
+    return { statistic, value, threshold, componentId, before, after, firstEvidenceTs: firstTs, firstEvidenceOffset: firstOffset, summary };
+  }
+
+  /** Evidence of shift statistic i; its first evidence is where its excursion began (kept from `prev` once alerting). */
+  statisticEvidence(i: number, statistic: string, componentId: number, summary: string, prev?: AlertEvidence): AlertEvidence {
+    const firstTs = prev ? prev.firstEvidenceTs : this.shifts.startTs(i);
+    const firstOffset = prev ? prev.firstEvidenceOffset : this.shifts.startOffset(i);
+    return this.evidence(statistic, this.shifts.value(i), this.h, componentId, firstTs, firstOffset, summary);
+  }
+
+  fitEvidence(prev?: AlertEvidence): AlertEvidence {
+    return this.evidence(
+      'cusum_surprise',
+      this.fit.value(0),
+      this.config.fitThreshold,
+      null,
+      prev ? prev.firstEvidenceTs : this.fit.startTs(0),
+      prev ? prev.firstEvidenceOffset : this.fit.startOffset(0),
+      'events are less likely under the reference than usual, and no single component change explains it',
+    );
   }
 
   /** Statistics restart (new reference): nothing is owned any more. */

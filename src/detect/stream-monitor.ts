@@ -99,7 +99,7 @@ export class StreamMonitor implements Monitor {
         return i % PER_COMPONENT === VANISH && this.recentShare[j] > 2 * this.config.vanishFraction * (this.ref as OnlineMixture1D).weight(j);
       },
       shiftEvidence: (i, prev) => this.shiftEvidence(i, prev),
-      fitEvidence: (prev) => this.fitEvidence(prev),
+      models: () => ({ before: this.views(this.ref), after: this.views(this.cur) }),
       confirmBorn: (a) => {
         const cur = this.cur as OnlineMixture1D;
         const j = cur.indexOf(a.componentId ?? -1);
@@ -319,20 +319,6 @@ export class StreamMonitor implements Monitor {
     return out.sort((a, b) => a.location - b.location);
   }
 
-  private baseEvidence(statistic: string, value: number, threshold: number, componentId: number | null, firstTs: number, firstOffset: number, summary: string): AlertEvidence {
-    return {
-      statistic,
-      value,
-      threshold,
-      componentId,
-      before: this.views(this.ref),
-      after: this.views(this.cur),
-      firstEvidenceTs: firstTs,
-      firstEvidenceOffset: firstOffset,
-      summary,
-    };
-  }
-
   private shiftEvidence(i: number, prev?: AlertEvidence): AlertEvidence {
     const ref = this.ref as OnlineMixture1D;
     const j = Math.floor(i / PER_COMPONENT);
@@ -348,27 +334,7 @@ export class StreamMonitor implements Monitor {
     else if (type === W_UP || type === W_DOWN) {
       summary = `the mode near ${loc} ${type === W_UP ? 'gains' : 'loses'} weight: ${pct(before.weight)} -> ${after ? pct(after.weight) : 'gone'}`;
     } else summary = `the mode near ${loc} moves ${type === LOC_UP ? 'up' : 'down'}${after ? `: location ${loc} -> ${fmt(after.location)}` : ''}`;
-    return this.baseEvidence(
-      STAT_NAMES[type],
-      this.shifts.value(i),
-      this.config.threshold,
-      id,
-      prev ? prev.firstEvidenceTs : this.shifts.startTs(i),
-      prev ? prev.firstEvidenceOffset : this.shifts.startOffset(i),
-      summary,
-    );
-  }
-
-  private fitEvidence(prev?: AlertEvidence): AlertEvidence {
-    return this.baseEvidence(
-      'cusum_surprise',
-      this.fit.value(0),
-      this.config.fitThreshold,
-      null,
-      prev ? prev.firstEvidenceTs : this.fit.startTs(0),
-      prev ? prev.firstEvidenceOffset : this.fit.startOffset(0),
-      'events are less likely under the reference than usual, and no single component change explains it',
-    );
+    return this.desk.statisticEvidence(i, STAT_NAMES[type], id, summary, prev);
   }
 
   private emergedEvidence(id: number, statistic: number, prev?: AlertEvidence): AlertEvidence {
@@ -377,7 +343,7 @@ export class StreamMonitor implements Monitor {
     const s = j >= 0 ? summarizeComponent(this.scaleName, cur.weight(j), cur.mean(j), cur.sd(j)) : null;
     // Right after its birth the weight is the excess seen since the first evidence: a small, selected sample, so say so.
     const summary = s ? `a new mode near ${fmt(s.location)} carries about ${pct(s.weight)} of events (early estimate; the current model refines it)` : 'a new mode appeared';
-    return this.baseEvidence('novelty_excess', statistic, this.config.threshold, id, prev ? prev.firstEvidenceTs : this.lastTs, prev ? prev.firstEvidenceOffset : this.lastOffset, summary);
+    return this.desk.evidence('novelty_excess', statistic, this.config.threshold, id, prev ? prev.firstEvidenceTs : this.lastTs, prev ? prev.firstEvidenceOffset : this.lastOffset, summary);
   }
 
   // ---- lifecycle ----

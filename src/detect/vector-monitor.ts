@@ -124,7 +124,7 @@ export class VectorStreamMonitor {
       isVanish: (i) => i % PER_COMPONENT === VANISH,
       vetoOpen: () => false,
       shiftEvidence: (i, prev) => this.shiftEvidence(i, prev),
-      fitEvidence: (prev) => this.fitEvidence(prev),
+      models: () => ({ before: this.views(this.reference), after: this.views(this.current) }),
       confirmBorn: (a) => {
         const cur = this.cur as OnlineMvMixture;
         const j = indexOf(this.curIds, cur.k, a.componentId ?? -1);
@@ -429,20 +429,6 @@ export class VectorStreamMonitor {
     return null;
   }
 
-  private baseEvidence(statistic: string, value: number, threshold: number, componentId: number | null, firstTs: number, firstOffset: number, summary: string): AlertEvidence {
-    return {
-      statistic,
-      value,
-      threshold,
-      componentId,
-      before: this.views(this.reference),
-      after: this.views(this.current),
-      firstEvidenceTs: firstTs,
-      firstEvidenceOffset: firstOffset,
-      summary,
-    };
-  }
-
   private shiftEvidence(i: number, prev?: AlertEvidence): AlertEvidence {
     const ref = this.ref as OnlineMvMixture;
     const cur = this.cur as OnlineMvMixture;
@@ -462,34 +448,14 @@ export class VectorStreamMonitor {
       const up = (type - LOC) % 2 === 0;
       summary = `the mode near ${loc} moves ${up ? 'up' : 'down'} along axis ${axis}${cj >= 0 ? `: now near ${vec(cur.mixture.meanOf(cj))}` : ''}`;
     }
-    return this.baseEvidence(
-      statName(type),
-      this.shifts.value(i),
-      this.config.threshold,
-      id,
-      prev ? prev.firstEvidenceTs : this.shifts.startTs(i),
-      prev ? prev.firstEvidenceOffset : this.shifts.startOffset(i),
-      summary,
-    );
-  }
-
-  private fitEvidence(prev?: AlertEvidence): AlertEvidence {
-    return this.baseEvidence(
-      'cusum_surprise',
-      this.fit.value(0),
-      this.config.fitThreshold,
-      null,
-      prev ? prev.firstEvidenceTs : this.fit.startTs(0),
-      prev ? prev.firstEvidenceOffset : this.fit.startOffset(0),
-      'events are less likely under the reference than usual, and no single component change explains it',
-    );
+    return this.desk.statisticEvidence(i, statName(type), id, summary, prev);
   }
 
   private emergedEvidence(id: number, statistic: number, prev?: AlertEvidence): AlertEvidence {
     const cur = this.cur as OnlineMvMixture;
     const j = indexOf(this.curIds, cur.k, id);
     const summary = j >= 0 ? `a new mode near ${vec(cur.mixture.meanOf(j))} carries ${pct(cur.mixture.weights[j])} of events` : 'a new mode appeared';
-    return this.baseEvidence('novelty_cluster_llr', statistic, this.config.threshold, id, prev ? prev.firstEvidenceTs : this.lastTs, prev ? prev.firstEvidenceOffset : this.lastOffset, summary);
+    return this.desk.evidence('novelty_cluster_llr', statistic, this.config.threshold, id, prev ? prev.firstEvidenceTs : this.lastTs, prev ? prev.firstEvidenceOffset : this.lastOffset, summary);
   }
 
   // ---- lifecycle ----
