@@ -138,8 +138,10 @@ export class OnlineMixture1D {
       maxSd = Math.max(maxSd, m.sds[i]);
     }
     const center = 0.5 * (lo + hi);
-    const unit = Math.max(0.5 * (hi - lo), maxSd);
-    const model = new OnlineMixture1D(m.scale, center, unit > 0 && Number.isFinite(unit) ? unit : 1, options);
+    // A unit below 1e-290 would make the floored sd (unit × sdFloorFraction) underflow to zero: model such
+    // (denormal) data at that resolution instead.
+    const unit = Math.max(0.5 * (hi - lo), maxSd, 1e-290);
+    const model = new OnlineMixture1D(m.scale, center, Number.isFinite(unit) ? unit : 1, options);
     for (let i = 0; i < m.k; i++) model.addComponent(m.means[i], m.sds[i], m.weights[i]);
     model.normalizeWeights();
     model.t = t;

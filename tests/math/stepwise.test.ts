@@ -110,7 +110,7 @@ describe('property tests (fast-check)', () => {
         expect(s).toBeCloseTo(1, 9);
         expect(Number.isFinite(fit.logLikelihood)).toBe(true);
       }),
-      { numRuns: 150 },
+      { numRuns: Number(process.env.PROPERTY_RUNS ?? 150) },
     );
   });
 
@@ -160,5 +160,9 @@ describe('regressions found by the property tests', () => {
     expect(Number.isFinite(fit.logLikelihood)).toBe(true);
     expect(Number.isFinite(fit.mixture.means[0])).toBe(true);
     expect(fit.mixture.sds[0]).toBeGreaterThan(0);
+    const m = OnlineMixture1D.fromMixture(fit.mixture, { window: 50 });
+    for (const x of [0, 5e-324, 0, 0]) m.update(x, 0);
+    expect(m.sd(0)).toBeGreaterThan(0);
+    expect(Number.isFinite(m.mean(0))).toBe(true);
   });
 });
