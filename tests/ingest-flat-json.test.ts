@@ -55,7 +55,7 @@ describe('flat JSON fast path of the message decoder', () => {
             else expect(Array.from(a.vector.subarray(0, a.dim))).toEqual(Array.from(b.vector.subarray(0, b.dim)));
           }
         }),
-        { numRuns: 3000 },
+        { numRuns: Number(process.env.PROPERTY_RUNS ?? 3000) },
       );
     });
   }
