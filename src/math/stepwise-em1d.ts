@@ -258,7 +258,6 @@ export class OnlineMixture1D {
 
   private logDomainResponsibilities(z: number, bg: number): void {
     const b = this.buf;
-    const cap = this.cap;
     const k = this.kActive;
     let max = bg > 0 ? Math.log(bg) : -Infinity;
     for (let j = 0; j < k; j++) {
@@ -367,7 +366,6 @@ export class OnlineMixture1D {
   logpdfModel(y: number): number {
     const z = (y - this.center) / this.unit;
     const b = this.buf;
-    const cap = this.cap;
     const keep = 1 - this.options.backgroundWeight;
     let max = -Infinity;
     for (let j = 0; j < this.kActive; j++) {
@@ -403,7 +401,6 @@ export class OnlineMixture1D {
   /** Add a component (model-scale mean and sd) with the given share of the weight; returns its stable id, or -1 at capacity. */
   addComponent(meanY: number, sdY: number, weight: number, id = 0): number {
     if (this.kActive >= this.cap) return -1;
-    const cap = this.cap;
     const j = this.kActive;
     let s = 0;
     for (let i = 0; i < j; i++) s += this.buf[i * FIELDS + S0];
@@ -421,7 +418,6 @@ export class OnlineMixture1D {
 
   /** Remove component i (its weight is shared out by renormalisation). */
   removeComponent(i: number): void {
-    const cap = this.cap;
     const last = this.kActive - 1;
     for (let j = i; j < last; j++) {
       for (let f = 0; f < FIELDS; f++) this.buf[j * FIELDS + f] = this.buf[(j + 1) * FIELDS + f];
@@ -433,7 +429,6 @@ export class OnlineMixture1D {
 
   /** Merge component b into a by moment matching; a keeps its id. */
   mergeComponents(a: number, bIdx: number): void {
-    const cap = this.cap;
     const buf = this.buf;
     const wa = buf[a * FIELDS + S0];
     const wb = buf[bIdx * FIELDS + S0];
