@@ -239,5 +239,5 @@ function round(x: number): number {
 
 if (import.meta.url === pathToFileURL(process.argv[1] ?? '').href) {
   const n = Number(process.argv[2] ?? 10_000);
-  for (const r of await benchScrape(n)) console.log(`${r.bench}: ${r.value} ${r.unit}`);
+  for (const r of await benchScrape(n)) console.log(JSON.stringify(r));
 }
