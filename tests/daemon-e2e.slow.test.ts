@@ -18,6 +18,7 @@ import { buildScenario } from '../src/simulate/suite.js';
 import type { Scenario } from '../src/simulate/scenario.js';
 import { consumeAll, createTopic, eventValue, httpGet, loadCheckpointDir, maxRelativeDifference, metricValue, produce, simulatedEvents, waitFor, writeDaemonConfig } from './support/daemon-harness.js';
 import { freePort, useSharedBroker } from './support/kafka-broker.js';
+import { promtoolCheckMetrics } from './support/prometheus-tools.js';
 
 const broker = useSharedBroker();
 const PER_STREAM = 10_000;
@@ -97,6 +98,9 @@ describe('daemon end to end', () => {
     // Metrics agree with the registry while it runs.
     const metrics = await httpGet(`${http.url}/metrics`);
     expect(metricValue(metrics?.text ?? '', 'modewatch_events_total')).toBe(events.length);
+    // Debian's promtool on a real scrape of the running daemon: it reports nothing.
+    const checked = await promtoolCheckMetrics(metrics?.text ?? '');
+    expect(checked).toEqual({ code: 0, out: '' });
 
     // Final models: views of both models of every stream, exactly.
     const strip = (v: { id: number; weight: number; location: number; spread: number }) => ({ id: v.id, weight: v.weight, location: v.location, spread: v.spread });

@@ -3,7 +3,6 @@
 // holds invented streams in several units, an awkward stream name, a stream still bootstrapping and
 // one with a fired alert, and the health has lag, a sink and transitions, so every family appears.
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
-import { spawn } from 'node:child_process';
 import { LogSink } from '../src/alerting/log-sink.js';
 import type { AlertTransition } from '../src/detect/alert.js';
 import { monitorConfig, type MonitorConfig } from '../src/detect/monitor-config.js';
@@ -14,7 +13,7 @@ import { EventSlot } from '../src/ingest/event.js';
 import { Mixture1D } from '../src/math/mixture1d.js';
 import { Random } from '../src/math/random.js';
 import { StreamRegistry } from '../src/streams/stream-registry.js';
-import { PROMTOOL, knownMetricNames } from './support/prometheus-tools.js';
+import { knownMetricNames, promtoolCheckMetrics } from './support/prometheus-tools.js';
 
 const health = new HealthState();
 const logged: string[] = [];
@@ -90,21 +89,6 @@ afterAll(async () => {
   await sink.close();
 });
 
-function promtoolCheck(text: string): Promise<{ code: number | null; out: string }> {
-  return new Promise((resolve, reject) => {
-    const child = spawn(PROMTOOL, ['check', 'metrics'], { stdio: ['pipe', 'pipe', 'pipe'] });
-    let out = '';
-    child.stdout.on('data', (d: Buffer) => (out += d.toString()));
-    child.stderr.on('data', (d: Buffer) => (out += d.toString()));
-    const timer = setTimeout(() => child.kill('SIGKILL'), 60_000);
-    child.on('error', reject);
-    child.on('close', (code) => {
-      clearTimeout(timer);
-      resolve({ code, out });
-    });
-    child.stdin.end(text);
-  });
-}
 
 describe('promtool check metrics', () => {
   it('finds nothing to report in a scrape of /metrics', async () => {
@@ -130,7 +114,7 @@ describe('promtool check metrics', () => {
     }
     expect(text).toMatch(new RegExp(`${METRICS.alertTransitionsTotal}\\{kind="mode_emerged",state="firing"\\} 1\\n`));
     expect(text).toContain(`${METRICS.sinkDeliveredTotal}{sink="log"} 1`);
-    const res = await promtoolCheck(text);
+    const res = await promtoolCheckMetrics(text);
     expect(res.out).toBe('');
     expect(res.code).toBe(0);
     // Names outside metric-names.ts are only prom-client's process set under the prefix.
@@ -145,10 +129,10 @@ describe('promtool check metrics', () => {
     registry.remove('temperature');
     const text = await (await fetch(`${server.url}/metrics`)).text();
     expect(text).not.toContain('stream="temperature"');
-    expect(await promtoolCheck(text)).toEqual({ code: 0, out: '' });
+    expect(await promtoolCheckMetrics(text)).toEqual({ code: 0, out: '' });
     for (const s of [...registry.streams()].map((e) => e.name)) registry.remove(s);
     const empty = await (await fetch(`${server.url}/metrics`)).text();
     expect(empty).not.toContain(METRICS.componentWeight);
-    expect(await promtoolCheck(empty)).toEqual({ code: 0, out: '' });
+    expect(await promtoolCheckMetrics(empty)).toEqual({ code: 0, out: '' });
   });
 });

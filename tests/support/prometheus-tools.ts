@@ -45,6 +45,23 @@ export function promtool(args: string[], cwd?: string): Promise<RunResult> {
   return run(PROMTOOL, args, 60_000, cwd);
 }
 
+/** `promtool check metrics` on an exposition text (given on its standard input); it prints nothing when all is well. */
+export function promtoolCheckMetrics(text: string): Promise<{ code: number | null; out: string }> {
+  return new Promise((resolve, reject) => {
+    const child = spawn(PROMTOOL, ['check', 'metrics'], { stdio: ['pipe', 'pipe', 'pipe'] });
+    let out = '';
+    child.stdout!.on('data', (d: Buffer) => (out += d.toString()));
+    child.stderr!.on('data', (d: Buffer) => (out += d.toString()));
+    const timer = setTimeout(() => child.kill('SIGKILL'), 60_000);
+    child.on('error', reject);
+    child.on('close', (code) => {
+      clearTimeout(timer);
+      resolve({ code, out });
+    });
+    child.stdin!.end(text);
+  });
+}
+
 /** A port that was free a moment ago on 127.0.0.1. */
 export async function freePort(): Promise<number> {
   const srv = createServer();
