@@ -84,7 +84,7 @@ export const demoCommand: CommandModule<object, DemoArgs> = {
     health.reason = 'ready';
     const http = await listen(args['http-listen'], registry, health);
     out.write(
-      `modewatch demo: ${scenario.description.split('.')[0]} (invented; see demo-data/README.md)\n` +
+      `modewatch demo: ${scenario.streams.length} invented streams (${scenario.streams.map((s) => s.name).join(', ')}); see demo-data/README.md\n` +
         `  web page: ${http.url}/\n  metrics:  ${http.url}/metrics\n  API:      ${http.url}/api/streams\n`,
     );
     const feed = new DemoFeed(scenario, registry, {

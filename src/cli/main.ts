@@ -37,6 +37,12 @@ async function main(argv: string[]): Promise<void> {
     .parseAsync();
 }
 
+// A reader that went away (`modewatch replay f | head`) ends the output quietly, as command-line tools do.
+process.stdout.on('error', (e: NodeJS.ErrnoException) => {
+  if (e.code === 'EPIPE') process.exit(0);
+  throw e;
+});
+
 main(hideBin(process.argv)).catch((e: unknown) => {
   if (e instanceof UsageError) {
     process.stderr.write(`modewatch: ${e.message}\n`);
