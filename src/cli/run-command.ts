@@ -36,6 +36,7 @@ import { loadWebConfig } from '../http/web-config.js';
 import { createKafka } from '../ingest/kafka-client.js';
 import { DeadLetterProducer } from '../ingest/dead-letter.js';
 import { KafkaSource } from '../ingest/kafka-source.js';
+import { ThreadedKafkaSource } from '../ingest/kafka-thread-source.js';
 import { makeMessageDecoder } from '../ingest/message-decoder.js';
 import { DirCheckpointStore } from '../state/dir-store.js';
 import { KafkaCheckpointStore } from '../state/kafka-store.js';
@@ -111,7 +112,8 @@ export async function startDaemon(config: ModewatchConfig, log: pino.Logger, onF
   const store: CheckpointStore = storeOpts !== null ? new KafkaCheckpointStore({ ...storeOpts, logger: kafkaLogger }) : new DirCheckpointStore(config.checkpoint.directory);
   const dlqOpts = deadLetterOptions(kafkaCfg);
   const deadLetter = dlqOpts !== null ? new DeadLetterProducer({ ...dlqOpts, logger: kafkaLogger }) : null;
-  const source = new KafkaSource({ ...kafkaSourceOptions(kafkaCfg), logger: kafkaLogger });
+  const sourceOptions = { ...kafkaSourceOptions(kafkaCfg), logger: kafkaLogger };
+  const source = kafkaCfg.consumerThread ? new ThreadedKafkaSource(sourceOptions) : new KafkaSource(sourceOptions);
 
   const webConfig = config.http.webConfigFile !== null ? await loadWebConfig(config.http.webConfigFile) : undefined;
   const http = await startHttpServer({

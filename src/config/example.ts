@@ -19,6 +19,7 @@ kafka:                                # needed by "modewatch run"; replay does n
   groupId: modewatch                  # daemons with the same groupId share the partitions
   fromBeginning: false                # a partition with no committed offset starts at the latest record
   sessionTimeoutMs: 30000             # a daemon silent this long loses its partitions to the others (6000..1800000)
+  consumerThread: true                # the Kafka consumer on a thread of its own: fetching overlaps modelling
   ssl: false                          # TLS to the brokers, with the system's CAs
   # sasl:                             # passwords never go in this file:
   #   mechanism: scram-sha-512        # plain | scram-sha-256 | scram-sha-512

@@ -125,7 +125,7 @@ function resolvePath(ctx: Ctx, path: PathSeg[], value: string): string {
 // ---------------------------------------------------------------------------------------------------------------
 // kafka
 
-const KAFKA_KEYS = ['brokers', 'clientId', 'groupId', 'fromBeginning', 'sessionTimeoutMs', 'ssl', 'sasl', 'topics', 'deadLetterTopic'];
+const KAFKA_KEYS = ['brokers', 'clientId', 'groupId', 'fromBeginning', 'sessionTimeoutMs', 'consumerThread', 'ssl', 'sasl', 'topics', 'deadLetterTopic'];
 
 function kafkaSection(ctx: Ctx, raw: unknown): KafkaConfig | null {
   const { ps } = ctx;
@@ -149,12 +149,13 @@ function kafkaSection(ctx: Ctx, raw: unknown): KafkaConfig | null {
   const fromBeginning = bool(ps, o, 'fromBeginning', base, false);
   // Kafka brokers accept 6 s to 30 min by default (group.min/max.session.timeout.ms).
   const sessionTimeoutMs = int(ps, o, 'sessionTimeoutMs', base, 30_000, 6_000, 1_800_000);
+  const consumerThread = bool(ps, o, 'consumerThread', base, true);
   const ssl = bool(ps, o, 'ssl', base, false);
   const sasl = absent(o.sasl) ? null : saslSection(ctx, o.sasl);
   const topics = topicsList(ctx, o);
   const deadLetterTopic = absent(o.deadLetterTopic) ? null : topicName(ps, o, 'deadLetterTopic', base);
   if (ps.length > before || clientId === undefined || groupId === undefined || topics === null || sasl === undefined || deadLetterTopic === undefined) return null;
-  return { brokers, clientId, groupId, fromBeginning, sessionTimeoutMs: sessionTimeoutMs ?? 30_000, ssl, sasl, topics, deadLetterTopic };
+  return { brokers, clientId, groupId, fromBeginning, sessionTimeoutMs: sessionTimeoutMs ?? 30_000, consumerThread, ssl, sasl, topics, deadLetterTopic };
 }
 
 function saslSection(ctx: Ctx, raw: unknown): SaslConfig | undefined {

@@ -9,6 +9,7 @@
  *     groupId: modewatch                # consumer group; default modewatch
  *     fromBeginning: false              # partitions with no committed offset start at the earliest (true) or latest
  *     sessionTimeoutMs: 30000           # a daemon silent this long loses its partitions (6000..1800000)
+ *     consumerThread: true              # the consumer on a thread of its own: fetching overlaps modelling
  *     ssl: false                        # TLS to the brokers with the system's CAs
  *     sasl:                             # optional
  *       mechanism: plain                # plain | scram-sha-256 | scram-sha-512
@@ -90,6 +91,8 @@ export interface KafkaConfig {
   fromBeginning: boolean;
   /** How long the group waits for a silent member before giving its partitions to another (after a crash, say). */
   sessionTimeoutMs: number;
+  /** Run the Kafka consumer on a thread of its own, so fetching and modelling overlap (default true). */
+  consumerThread: boolean;
   ssl: boolean;
   sasl: SaslConfig | null;
   topics: TopicConfig[];
