@@ -3,6 +3,7 @@
  * (kafka-thread-source.ts), and how a batch of records travels between them: packed into a few typed arrays
  * whose buffers are transferred, not copied record by record.
  */
+import { isUtf8 } from 'node:buffer';
 import type { KafkaLogger } from './kafka-client.js';
 import type { KafkaSourceOptions } from './kafka-source.js';
 import type { RawRecord } from './source.js';
@@ -22,6 +23,10 @@ export interface PackedBatch {
   keyEnd: Int32Array;
   valueStart: Int32Array;
   valueEnd: Int32Array;
+  /** Values that are valid UTF-8, decoded on the consumer thread: value i is text.slice(valueStart[i], valueEnd[i])
+   *  when textValue[i] is 1 (decoding there is work the daemon's thread no longer does). */
+  text: string;
+  textValue: Uint8Array;
   /** Headers of the few records that have any: [index, headers]. */
   headers: [number, Record<string, Uint8Array | string | undefined>][];
 }
@@ -47,7 +52,7 @@ export type FromWorker =
 export function packBatch(partition: string, records: readonly RawRecord[]): { batch: PackedBatch; transfer: ArrayBuffer[] } {
   const n = records.length;
   let total = 0;
-  for (const r of records) total += byteLength(r.key) + byteLength(r.value);
+  for (const r of records) total += byteLength(r.key) + byteLength(r.value); // an upper bound: text values take none
   const bytes = new Uint8Array(total);
   const keyStart = new Int32Array(n);
   const keyEnd = new Int32Array(n);
@@ -56,13 +61,24 @@ export function packBatch(partition: string, records: readonly RawRecord[]): { b
   const offsets = new Float64Array(n);
   const timestamps = new Float64Array(n);
   const headers: PackedBatch['headers'] = [];
+  const textValue = new Uint8Array(n);
+  const parts: string[] = [];
+  let textLength = 0;
   let at = 0;
   for (let i = 0; i < n; i++) {
     const r = records[i];
     offsets[i] = r.offset;
     timestamps[i] = r.timestamp;
     at = put(r.key, bytes, at, keyStart, keyEnd, i);
-    at = put(r.value, bytes, at, valueStart, valueEnd, i);
+    const v = r.value;
+    if (v !== null && (typeof v === 'string' || isUtf8(v))) {
+      const t = typeof v === 'string' ? v : v.toString('utf8');
+      textValue[i] = 1;
+      valueStart[i] = textLength;
+      textLength += t.length;
+      valueEnd[i] = textLength;
+      parts.push(t);
+    } else at = put(v, bytes, at, valueStart, valueEnd, i);
     for (const _ in r.headers) {
       headers.push([i, r.headers as Record<string, Uint8Array | string | undefined>]);
       break;
@@ -70,8 +86,8 @@ export function packBatch(partition: string, records: readonly RawRecord[]): { b
   }
   const topic = n > 0 ? records[0].topic : '';
   return {
-    batch: { partition, topic, n, offsets, timestamps, bytes, keyStart, keyEnd, valueStart, valueEnd, headers },
-    transfer: [bytes.buffer, keyStart.buffer, keyEnd.buffer, valueStart.buffer, valueEnd.buffer, offsets.buffer, timestamps.buffer] as ArrayBuffer[],
+    batch: { partition, topic, n, offsets, timestamps, bytes, keyStart, keyEnd, valueStart, valueEnd, text: parts.join(''), textValue, headers },
+    transfer: [bytes.buffer, keyStart.buffer, keyEnd.buffer, valueStart.buffer, valueEnd.buffer, offsets.buffer, timestamps.buffer, textValue.buffer] as ArrayBuffer[],
   };
 }
 
@@ -92,7 +108,7 @@ export function unpackBatch(b: PackedBatch): RawRecord[] {
       partition: b.partition,
       offset: b.offsets[i],
       key: b.keyStart[i] < 0 ? null : buf.subarray(b.keyStart[i], b.keyEnd[i]),
-      value: b.valueStart[i] < 0 ? null : buf.subarray(b.valueStart[i], b.valueEnd[i]),
+      value: b.textValue[i] === 1 ? b.text.slice(b.valueStart[i], b.valueEnd[i]) : b.valueStart[i] < 0 ? null : buf.subarray(b.valueStart[i], b.valueEnd[i]),
       timestamp: b.timestamps[i],
       headers,
       topic: b.topic,
