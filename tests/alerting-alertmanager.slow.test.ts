@@ -6,6 +6,7 @@ import type { AlertTransition } from '../src/detect/alert.js';
 import { AlertmanagerSink, type PostableAlert } from '../src/alerting/alertmanager-sink.js';
 import { DeliveryQueue } from '../src/alerting/delivery-queue.js';
 import { postJson } from '../src/alerting/http-post.js';
+import { sampleTransition } from './support/alert-fixture.js';
 import { startAlertmanager, type RunningServer } from './support/prometheus-tools.js';
 
 interface GettableAlert {
@@ -18,35 +19,17 @@ interface GettableAlert {
 }
 
 function transition(state: AlertTransition['state'], now: number): AlertTransition {
-  return {
-    key: 'checkout/mode_emerged/2',
-    stream: 'checkout',
-    kind: 'mode_emerged',
-    state,
-    ts: now,
-    offset: 5000,
-    startsAt: now - 60_000,
-    endsAt: state === 'resolved' ? now : null,
-    resolution: state === 'resolved' ? 'recovered' : null,
-    evidence: {
-      statistic: 'novelty_cusum',
-      value: 14.2,
-      threshold: 9.5,
-      componentId: 2,
-      before: [
-        { id: 0, weight: 0.8, location: 40, spread: 6, mean: 40 },
-        { id: 1, weight: 0.2, location: 180, spread: 25, mean: 180 },
-      ],
-      after: [
-        { id: 0, weight: 0.78, location: 40.3, spread: 6.1, mean: 40.3 },
-        { id: 1, weight: 0.194, location: 181, spread: 24, mean: 181 },
-        { id: 2, weight: 0.026, location: 912, spread: 80, mean: 915 },
-      ],
-      firstEvidenceTs: now - 79_000,
-      firstEvidenceOffset: 4100,
-      summary: 'a new mode near 912 ms carries 2.6 % of events (invented example)',
+  return sampleTransition(
+    {
+      state,
+      ts: now,
+      offset: 5000,
+      startsAt: now - 60_000,
+      endsAt: state === 'resolved' ? now : null,
+      resolution: state === 'resolved' ? 'recovered' : null,
     },
-  };
+    { firstEvidenceTs: now - 79_000, firstEvidenceOffset: 4100 },
+  );
 }
 
 async function alerts(am: RunningServer): Promise<GettableAlert[]> {

@@ -11,38 +11,10 @@ import { backoffDelay, DeliveryQueue } from '../src/alerting/delivery-queue.js';
 import { FanoutSink } from '../src/alerting/fanout.js';
 import { LogSink } from '../src/alerting/log-sink.js';
 import { WebhookSink } from '../src/alerting/webhook-sink.js';
+import { sampleTransition } from './support/alert-fixture.js';
 
 function transition(over: Partial<AlertTransition> = {}): AlertTransition {
-  return {
-    key: 'checkout/mode_emerged/2',
-    stream: 'checkout',
-    kind: 'mode_emerged',
-    state: 'firing',
-    ts: 1_700_000_060_000,
-    offset: 1234,
-    startsAt: 1_700_000_041_000,
-    endsAt: null,
-    resolution: null,
-    evidence: {
-      statistic: 'novelty_cusum',
-      value: 14.2,
-      threshold: 9.5,
-      componentId: 2,
-      before: [
-        { id: 0, weight: 0.8, location: 40, spread: 6, mean: 40 },
-        { id: 1, weight: 0.2, location: 180, spread: 25, mean: 180 },
-      ],
-      after: [
-        { id: 0, weight: 0.78, location: 40.3, spread: 6.1, mean: 40.3 },
-        { id: 1, weight: 0.194, location: 181, spread: 24, mean: 181 },
-        { id: 2, weight: 0.026, location: 912, spread: 80, mean: 915 },
-      ],
-      firstEvidenceTs: 1_700_000_041_000,
-      firstEvidenceOffset: 1200,
-      summary: 'a new mode near 912 ms carries 2.6 % of events (invented example)',
-    },
-    ...over,
-  };
+  return sampleTransition(over);
 }
 
 interface Seen {
