@@ -8,20 +8,13 @@ import { ConfigResourceTypes, Kafka, logLevel } from 'kafkajs';
 import { describe, expect, it } from 'vitest';
 import { KafkaCheckpointStore, streamKey } from '../src/state/kafka-store.js';
 import type { Checkpoint } from '../src/state/store.js';
+import { SAMPLE_CHECKPOINT } from './support/checkpoint-fixture.js';
 import { useSharedBroker } from './support/kafka-broker.js';
 
 const broker = useSharedBroker();
 const uniq = () => randomBytes(4).toString('hex');
 
-const cp1: Checkpoint = {
-  positions: { 'lat-0': 120, 'lat-1': 7 },
-  counters: { 'lat-0': { events: 118, rejected_unparseable: 2 }, 'lat-1': { events: 7 } },
-  streams: [
-    { stream: 'checkout', partition: 'lat-0', state: '{"v":1,"k":2}' },
-    { stream: 'search', partition: 'lat-0', state: '{"v":1,"k":1}' },
-    { stream: 'login', partition: 'lat-1', state: '{"v":1,"k":3}' },
-  ],
-};
+const cp1: Checkpoint = SAMPLE_CHECKPOINT;
 
 /** Every record of the topic, in log order, read with a plain kafkajs consumer. */
 async function readRaw(brokers: string[], topic: string): Promise<{ key: string; value: string | null }[]> {

@@ -9,6 +9,7 @@ import { join } from 'node:path';
 import { afterEach, beforeEach, describe, expect, it } from 'vitest';
 import { DirCheckpointStore } from '../src/state/dir-store.js';
 import type { Checkpoint } from '../src/state/store.js';
+import { SAMPLE_CHECKPOINT } from './support/checkpoint-fixture.js';
 
 let dir: string;
 beforeEach(async () => {
@@ -18,15 +19,7 @@ afterEach(async () => {
   await rm(dir, { recursive: true, force: true });
 });
 
-const cp1: Checkpoint = {
-  positions: { 'lat-0': 120, 'lat-1': 7 },
-  counters: { 'lat-0': { events: 118, rejected_unparseable: 2 }, 'lat-1': { events: 7 } },
-  streams: [
-    { stream: 'checkout', partition: 'lat-0', state: '{"v":1,"k":2}' },
-    { stream: 'search', partition: 'lat-0', state: '{"v":1,"k":1}' },
-    { stream: 'login', partition: 'lat-1', state: '{"v":1,"k":3}' },
-  ],
-};
+const cp1: Checkpoint = SAMPLE_CHECKPOINT;
 
 describe('DirCheckpointStore', () => {
   it('loads an empty checkpoint from an empty or missing directory', async () => {
