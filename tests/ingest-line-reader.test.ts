@@ -7,7 +7,7 @@ import { afterAll, describe, expect, it } from 'vitest';
 import { EventSlot, type DecodeRejection } from '../src/ingest/event.js';
 import { decodeFile, FileSource, OVERSIZED_HEADERS } from '../src/ingest/file-source.js';
 import { forEachLine, readLineChunks, type LineReaderOptions } from '../src/ingest/line-reader.js';
-import type { RawRecord, RecordBatch } from '../src/ingest/source.js';
+import { copyRecords, type RawRecord, type RecordBatch } from '../src/ingest/source.js';
 
 const dir = mkdtempSync(join(tmpdir(), 'modewatch-line-reader-'));
 afterAll(() => rmSync(dir, { recursive: true, force: true }));
@@ -108,14 +108,14 @@ describe('file source', () => {
   const csvText = 'ts,stream,value\n10,a,1\n11,b,2;3\n12,a,x\n';
 
   function collector(resume = new Map<string, number>()) {
-    const batches: RecordBatch[] = [];
+    const batches: { partition: string; records: RawRecord[] }[] = [];
     const fatal: Error[] = [];
     return {
       batches,
       fatal,
       handlers: {
         onBatch: async (b: RecordBatch) => {
-          batches.push({ partition: b.partition, records: b.records.slice() });
+          batches.push({ partition: b.partition, records: copyRecords(b) });
         },
         onAssigned: async () => resume,
         onRevoked: async () => undefined,

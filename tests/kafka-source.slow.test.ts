@@ -8,7 +8,7 @@ import { Kafka, logLevel } from 'kafkajs';
 import { describe, expect, it } from 'vitest';
 import { DeadLetterProducer, DLQ_HEADERS } from '../src/ingest/dead-letter.js';
 import { KafkaSource } from '../src/ingest/kafka-source.js';
-import type { RawRecord, SourceHandlers } from '../src/ingest/source.js';
+import { copyRecords, type RawRecord, type SourceHandlers } from '../src/ingest/source.js';
 import { useSharedBroker } from './support/kafka-broker.js';
 
 const broker = useSharedBroker();
@@ -41,8 +41,9 @@ function recorder(offsets: Map<string, number> = new Map()) {
   const fatal: Error[] = [];
   const handlers: SourceHandlers = {
     onBatch: async (b) => {
-      for (const r of b.records) expect(r.partition).toBe(b.partition);
-      records.push(...b.records);
+      const rs = copyRecords(b);
+      for (const r of rs) expect(r.partition).toBe(b.partition);
+      records.push(...rs);
     },
     onAssigned: async (ps) => {
       assigned.push(ps);

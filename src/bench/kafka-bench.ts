@@ -124,7 +124,7 @@ async function bareConsumer(brokers: string[], topic: string, n: number): Promis
   return n / ((t1 - t0) / 1000);
 }
 
-async function daemonPipeline(brokers: string[], topic: string, n: number, dir: string): Promise<{ rate: number; checkpoints: string }> {
+async function daemonPipeline(brokers: string[], topic: string, n: number, dir: string): Promise<{ rate: number; checkpoints: string; busy: number }> {
   await mkdir(dir, { recursive: true });
   const configPath = join(dir, 'bench.yaml');
   await writeFile(
@@ -158,9 +158,10 @@ async function daemonPipeline(brokers: string[], topic: string, n: number, dir: 
   const registry = running.registry;
   while (registry.accepted + [...registry.rejections.values()].reduce((a, b) => a + b, 0) < n) await new Promise((r) => setTimeout(r, 2));
   const t1 = performance.now();
+  const busy = running.health.busySeconds / ((t1 - t0) / 1000);
   const every = `${config.checkpoint.everyEvents} events or ${config.checkpoint.everySeconds} s`;
   await running.stop();
-  return { rate: n / ((t1 - t0) / 1000), checkpoints: every };
+  return { rate: n / ((t1 - t0) / 1000), checkpoints: every, busy };
 }
 
 // -------------------------------------------------------------------------------------------------- memory
@@ -243,7 +244,7 @@ async function main(): Promise<void> {
       const d = await daemonPipeline(broker.brokers, topic, n, join(dir, `round-${r}`));
       daemon.push(d.rate);
       checkpoints = d.checkpoints;
-      emit({ bench: 'kafka/daemon_round', value: Math.round(d.rate), unit: 'events/s', round: r, ratio: Math.round((d.rate / bare[r - 1]) * 1000) / 1000 });
+      emit({ bench: 'kafka/daemon_round', value: Math.round(d.rate), unit: 'events/s', round: r, ratio: Math.round((d.rate / bare[r - 1]) * 1000) / 1000, modelling_busy_fraction: Math.round(d.busy * 1000) / 1000 });
     }
     const mb = median(bare);
     const md = median(daemon);

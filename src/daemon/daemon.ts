@@ -121,12 +121,12 @@ export class Daemon {
     const counters = this.partCounters(p);
     const registry = this.o.registry;
     const slot = this.slot;
-    const records = batch.records;
+    const n = batch.length;
     let next = this.positions.get(p) ?? -1;
     // A batch is one partition, so one topic: one decoder look-up per batch, not per record.
-    const decode = records.length > 0 ? this.decoder(records[0].topic) : null;
-    for (let i = 0; i < records.length; i++) {
-      const rec = records[i];
+    const decode = n > 0 ? this.decoder(batch.record(0).topic) : null;
+    for (let i = 0; i < n; i++) {
+      const rec = batch.record(i); // valid until the next record(): publish() copies what it keeps
       if (rec.offset < next) continue; // already covered (a re-delivered fetch after a seek)
       slot.partition = p;
       slot.offset = rec.offset;
@@ -141,7 +141,7 @@ export class Daemon {
       next = rec.offset + 1;
     }
     if (next >= 0) this.positions.set(p, next);
-    this.eventsSinceCheckpoint += records.length;
+    this.eventsSinceCheckpoint += n;
     this.o.health.busySeconds += (performance.now() - t0) / 1000;
     const due =
       this.eventsSinceCheckpoint >= this.o.checkpointEveryEvents ||

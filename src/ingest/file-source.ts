@@ -14,7 +14,7 @@ import { stat } from 'node:fs/promises';
 import { EventSlot, type DecodeRejection } from './event.js';
 import { readLineChunks, type LineReaderOptions } from './line-reader.js';
 import { decoderForFirstLine, type RangeDecoder, type RecordFormat } from './records.js';
-import type { RawRecord, RecordBatch, Source, SourceHandlers } from './source.js';
+import { recordBatch, type RawRecord, type Source, type SourceHandlers } from './source.js';
 
 export interface FileSourceOptions {
   /** Files to read; '-' is stdin. */
@@ -121,7 +121,7 @@ export class FileSource implements Source {
             topic: path,
           });
           if (records.length >= batchSize) {
-            await handlers.onBatch({ partition, records } satisfies RecordBatch);
+            await handlers.onBatch(recordBatch(partition, records));
             records = [];
             if (this.stopping) break;
           }
@@ -129,7 +129,7 @@ export class FileSource implements Source {
         lines += c.count;
         if (this.stopping) break;
       }
-      if (records.length > 0) await handlers.onBatch({ partition, records });
+      if (records.length > 0) await handlers.onBatch(recordBatch(partition, records));
       stats.lines.set(partition, lines);
     }
     return stats;

@@ -17,8 +17,9 @@
  * Lag per partition is high watermark minus the next offset to read. High watermarks come for free with each
  * fetched batch and are refreshed with admin.fetchTopicOffsets at most every lagRefreshMs when lag() is read.
  */
-import type { Admin, Consumer, EachBatchPayload, Kafka, KafkaMessage } from 'kafkajs';
-import type { RawRecord, RecordBatch, Source, SourceHandlers } from './source.js';
+import type { Admin, Consumer, EachBatchPayload, Kafka } from 'kafkajs';
+import { firstAtOrAfter, KafkaMessageBatch } from './kafka-message-batch.js';
+import type { Source, SourceHandlers } from './source.js';
 import {
   createKafka,
   describeKafka,
@@ -316,17 +317,11 @@ export class KafkaSource implements Source {
     const hw = Number(batch.highWatermark);
     if (Number.isFinite(hw)) this.highWatermarks.set(name, hw);
 
-    const floor = this.floor.get(name);
-    const records: RawRecord[] = [];
-    for (const m of batch.messages) {
-      const offset = Number(m.offset);
-      if (floor !== undefined && offset < floor) continue; // already covered by the restored checkpoint
-      records.push(toRawRecord(name, batch.topic, offset, m));
-    }
+    // Messages before the floor are already covered by the restored checkpoint.
+    const start = firstAtOrAfter(batch.messages, this.floor.get(name));
     const last = batch.messages[batch.messages.length - 1];
-    if (records.length > 0) {
-      const out: RecordBatch = { partition: name, records };
-      await this.handlers.onBatch(out);
+    if (start < batch.messages.length) {
+      await this.handlers.onBatch(new KafkaMessageBatch(name, batch.topic, batch.messages, start));
       this.floor.delete(name);
     }
     if (last) {
@@ -370,21 +365,6 @@ export class KafkaSource implements Source {
       this.lagRefreshing = false;
     }
   }
-}
-
-/** Shared by every record without headers (most of them): no object per record for nothing. */
-const NO_HEADERS: Readonly<Record<string, Buffer | string | undefined>> = Object.freeze({});
-
-function toRawRecord(partition: string, topic: string, offset: number, m: KafkaMessage): RawRecord {
-  let headers = NO_HEADERS as Record<string, Buffer | string | undefined>;
-  if (m.headers) {
-    for (const k in m.headers) {
-      if (headers === NO_HEADERS) headers = {};
-      const v = m.headers[k];
-      headers[k] = Array.isArray(v) ? v[0] : v;
-    }
-  }
-  return { partition, offset, key: m.key ?? null, value: m.value ?? null, timestamp: Number(m.timestamp), headers, topic };
 }
 
 function validate(opts: KafkaSourceOptions): void {

@@ -6,7 +6,7 @@
 import { isUtf8 } from 'node:buffer';
 import type { KafkaLogger } from './kafka-client.js';
 import type { KafkaSourceOptions } from './kafka-source.js';
-import type { RawRecord } from './source.js';
+import type { RawRecord, RecordBatch } from './source.js';
 
 /** Options as they cross to the worker: patterns as source and flags, no logger (logs come back as messages). */
 export type WireOptions = Omit<KafkaSourceOptions, 'topics' | 'logger'> & { topics: string[]; patterns: { source: string; flags: string }[] | null };
@@ -17,16 +17,14 @@ export interface PackedBatch {
   n: number;
   offsets: Float64Array;
   timestamps: Float64Array;
-  /** Bytes of every key, then every value; a record's key is keyBytes[keyStart[i], keyStart[i+1]), -1 for none. */
+  /** Key i is bytes[keyStart[i], keyEnd[i]) and value i is bytes[valueStart[i], valueEnd[i]); a start of -1 is
+   *  null. The consumer thread only copies bytes: decoding them to text and keys to stream names happens on the
+   *  daemon's thread, which has the time (kafkajs itself keeps the consumer thread busy). */
   bytes: Uint8Array;
   keyStart: Int32Array;
   keyEnd: Int32Array;
   valueStart: Int32Array;
   valueEnd: Int32Array;
-  /** Values that are valid UTF-8, decoded on the consumer thread: value i is text.slice(valueStart[i], valueEnd[i])
-   *  when textValue[i] is 1 (decoding there is work the daemon's thread no longer does). */
-  text: string;
-  textValue: Uint8Array;
   /** Headers of the few records that have any: [index, headers]. */
   headers: [number, Record<string, Uint8Array | string | undefined>][];
 }
@@ -49,90 +47,169 @@ export type FromWorker =
   | { t: 'log'; level: keyof KafkaLogger; obj: object; msg: string }
   | { t: 'stopped' };
 
-export function packBatch(partition: string, records: readonly RawRecord[]): { batch: PackedBatch; transfer: ArrayBuffer[] } {
-  const n = records.length;
+/** Keys and values of the batch being packed (reused between batches: packing allocates per batch, not per record). */
+const keysHeld: (Buffer | null)[] = [];
+const valuesHeld: (Buffer | null)[] = [];
+
+function asBytes(v: Buffer | string | null): Buffer | null {
+  return v === null ? null : typeof v === 'string' ? Buffer.from(v, 'utf8') : v;
+}
+
+export function packBatch(batch: RecordBatch): { batch: PackedBatch; transfer: ArrayBuffer[] } {
+  const n = batch.length;
+  const offsets = new Float64Array(n);
+  const timestamps = new Float64Array(n);
+  const headers: PackedBatch['headers'] = [];
+  let topic = '';
   let total = 0;
-  for (const r of records) total += byteLength(r.key) + byteLength(r.value); // an upper bound: text values take none
+  if (keysHeld.length < n) {
+    keysHeld.length = n;
+    valuesHeld.length = n;
+  }
+  for (let i = 0; i < n; i++) {
+    const r = batch.record(i);
+    topic = r.topic;
+    offsets[i] = r.offset;
+    timestamps[i] = r.timestamp;
+    const k = asBytes(r.key);
+    const v = asBytes(r.value);
+    keysHeld[i] = k;
+    valuesHeld[i] = v;
+    if (k !== null) total += k.length;
+    if (v !== null) total += v.length;
+    for (const _ in r.headers) {
+      headers.push([i, { ...r.headers } as Record<string, Uint8Array | string | undefined>]);
+      break;
+    }
+  }
+  // Copying each key and value is cheaper than finding out whether they share one buffer (typed-array getters
+  // such as byteOffset and buffer cost more than a small copy).
   const bytes = new Uint8Array(total);
   const keyStart = new Int32Array(n);
   const keyEnd = new Int32Array(n);
   const valueStart = new Int32Array(n);
   const valueEnd = new Int32Array(n);
-  const offsets = new Float64Array(n);
-  const timestamps = new Float64Array(n);
-  const headers: PackedBatch['headers'] = [];
-  const textValue = new Uint8Array(n);
-  const parts: string[] = [];
-  let textLength = 0;
   let at = 0;
   for (let i = 0; i < n; i++) {
-    const r = records[i];
-    offsets[i] = r.offset;
-    timestamps[i] = r.timestamp;
-    at = put(r.key, bytes, at, keyStart, keyEnd, i);
-    const v = r.value;
-    if (v !== null && (typeof v === 'string' || isUtf8(v))) {
-      const t = typeof v === 'string' ? v : v.toString('utf8');
-      textValue[i] = 1;
-      valueStart[i] = textLength;
-      textLength += t.length;
-      valueEnd[i] = textLength;
-      parts.push(t);
-    } else at = put(v, bytes, at, valueStart, valueEnd, i);
-    for (const _ in r.headers) {
-      headers.push([i, r.headers as Record<string, Uint8Array | string | undefined>]);
-      break;
+    const k = keysHeld[i];
+    if (k === null) {
+      keyStart[i] = -1;
+      keyEnd[i] = -1;
+    } else {
+      bytes.set(k, at);
+      keyStart[i] = at;
+      at += k.length;
+      keyEnd[i] = at;
+    }
+    const v = valuesHeld[i];
+    if (v === null) {
+      valueStart[i] = -1;
+      valueEnd[i] = -1;
+    } else {
+      bytes.set(v, at);
+      valueStart[i] = at;
+      at += v.length;
+      valueEnd[i] = at;
     }
   }
-  const topic = n > 0 ? records[0].topic : '';
+  keysHeld.fill(null); // keep no fetched buffer alive past the batch
+  valuesHeld.fill(null);
   return {
-    batch: { partition, topic, n, offsets, timestamps, bytes, keyStart, keyEnd, valueStart, valueEnd, text: parts.join(''), textValue, headers },
-    transfer: [bytes.buffer, keyStart.buffer, keyEnd.buffer, valueStart.buffer, valueEnd.buffer, offsets.buffer, timestamps.buffer, textValue.buffer] as ArrayBuffer[],
+    batch: { partition: batch.partition, topic, n, offsets, timestamps, bytes, keyStart, keyEnd, valueStart, valueEnd, headers },
+    transfer: [bytes.buffer, keyStart.buffer, keyEnd.buffer, valueStart.buffer, valueEnd.buffer, offsets.buffer, timestamps.buffer] as ArrayBuffer[],
   };
 }
 
 const NO_HEADERS: Readonly<Record<string, Buffer | string | undefined>> = Object.freeze({});
 
-export function unpackBatch(b: PackedBatch): RawRecord[] {
-  const out: RawRecord[] = new Array(b.n);
-  const buf = Buffer.from(b.bytes.buffer, b.bytes.byteOffset, b.bytes.byteLength);
-  let h = 0;
-  for (let i = 0; i < b.n; i++) {
-    let headers = NO_HEADERS as Record<string, Buffer | string | undefined>;
-    if (h < b.headers.length && b.headers[h][0] === i) {
-      headers = {};
-      for (const [k, v] of Object.entries(b.headers[h][1])) headers[k] = v instanceof Uint8Array ? Buffer.from(v) : v;
-      h++;
+/**
+ * Keys seen on the daemon's thread, found by a hash of their bytes (FNV-1a, 32 bits) and a byte comparison, so
+ * that a key that repeats is neither decoded nor interned again: it comes back as the same string (text when its
+ * bytes are valid UTF-8, which decoders treat as they treat the bytes), or as bytes. Bounded: cleared when full.
+ */
+export class KeyTable {
+  private readonly byHash = new Map<number, { bytes: Uint8Array; key: string | Buffer }>();
+
+  constructor(private readonly capacity = 100_000) {}
+
+  key(bytes: Uint8Array, start: number, end: number): string | Buffer {
+    let h = 0x811c9dc5;
+    for (let j = start; j < end; j++) h = Math.imul(h ^ bytes[j], 0x01000193);
+    const hit = this.byHash.get(h);
+    if (hit !== undefined && sameBytes(hit.bytes, bytes, start, end)) return hit.key;
+    const own = bytes.slice(start, end);
+    const buf = Buffer.from(own.buffer, own.byteOffset, own.byteLength);
+    const text = buf.toString('utf8');
+    // Decoding replaces bytes that are not UTF-8 with U+FFFD; such a key stays bytes.
+    const key = text.includes('\uFFFD') && !isUtf8(buf) ? buf : text;
+    if (hit === undefined) {
+      if (this.byHash.size >= this.capacity) this.byHash.clear();
+      this.byHash.set(h, { bytes: own, key });
     }
-    out[i] = {
-      partition: b.partition,
-      offset: b.offsets[i],
-      key: b.keyStart[i] < 0 ? null : buf.subarray(b.keyStart[i], b.keyEnd[i]),
-      value: b.textValue[i] === 1 ? b.text.slice(b.valueStart[i], b.valueEnd[i]) : b.valueStart[i] < 0 ? null : buf.subarray(b.valueStart[i], b.valueEnd[i]),
-      timestamp: b.timestamps[i],
-      headers,
-      topic: b.topic,
-    };
+    return key;
   }
-  return out;
 }
 
-function byteLength(v: Buffer | string | null): number {
-  return v === null ? 0 : typeof v === 'string' ? Buffer.byteLength(v) : v.length;
+function sameBytes(a: Uint8Array, b: Uint8Array, start: number, end: number): boolean {
+  if (a.length !== end - start) return false;
+  for (let j = 0; j < a.length; j++) if (a[j] !== b[start + j]) return false;
+  return true;
 }
 
-function put(v: Buffer | string | null, bytes: Uint8Array, at: number, start: Int32Array, end: Int32Array, i: number): number {
-  if (v === null) {
-    start[i] = -1;
-    end[i] = -1;
-    return at;
+/** A packed batch read through the RecordBatch cursor on the daemon's thread: one reused record, no copies. */
+export class PackedRecordBatch implements RecordBatch {
+  readonly partition: string;
+  readonly length: number;
+  private readonly rec: RawRecord;
+  private readonly buf: Buffer;
+  /** The bytes as Latin-1 text, one character a byte: a value whose bytes are all ASCII is a slice of it (the
+   *  same text UTF-8 decoding gives), made with one decoding call per batch instead of one per record. */
+  private readonly text: string;
+  /** Index into b.headers of the next record with headers (records are read in order; rewinds if not). */
+  private h = 0;
+
+  constructor(
+    private readonly b: PackedBatch,
+    private readonly keys: KeyTable,
+  ) {
+    this.partition = b.partition;
+    this.length = b.n;
+    this.buf = Buffer.from(b.bytes.buffer, b.bytes.byteOffset, b.bytes.byteLength);
+    this.text = this.buf.toString('latin1');
+    this.rec = { partition: b.partition, offset: 0, key: null, value: null, timestamp: 0, headers: NO_HEADERS as RawRecord['headers'], topic: b.topic };
   }
-  const b = typeof v === 'string' ? Buffer.from(v) : v;
-  bytes.set(b, at);
-  start[i] = at;
-  end[i] = at + b.length;
-  return at + b.length;
+
+  record(i: number): RawRecord {
+    const b = this.b;
+    const r = this.rec;
+    r.offset = b.offsets[i];
+    r.timestamp = b.timestamps[i];
+    const ks = b.keyStart[i];
+    r.key = ks < 0 ? null : this.keys.key(b.bytes, ks, b.keyEnd[i]);
+    const vs = b.valueStart[i];
+    const ve = b.valueEnd[i];
+    if (vs < 0) r.value = null;
+    else {
+      const bytes = b.bytes;
+      let j = vs;
+      while (j < ve && bytes[j] < 0x80) j++;
+      r.value = j === ve ? this.text.slice(vs, ve) : this.buf.subarray(vs, ve);
+    }
+    r.headers = NO_HEADERS as RawRecord['headers'];
+    const hs = b.headers;
+    if (hs.length > 0) {
+      if (this.h >= hs.length || hs[this.h][0] > i) this.h = 0;
+      while (this.h < hs.length && hs[this.h][0] < i) this.h++;
+      if (this.h < hs.length && hs[this.h][0] === i) {
+        const headers: RawRecord['headers'] = {};
+        for (const [name, v] of Object.entries(hs[this.h][1])) headers[name] = v instanceof Uint8Array ? Buffer.from(v) : v;
+        r.headers = headers;
+      }
+    }
+    return r;
+  }
 }
+
 
 export function toWire(o: KafkaSourceOptions): WireOptions {
   const { topics, logger, ...rest } = o;

@@ -10,7 +10,7 @@ import { fileURLToPath } from 'node:url';
 import { Worker } from 'node:worker_threads';
 import { silentKafkaLogger, type KafkaLogger } from './kafka-client.js';
 import type { KafkaSourceOptions } from './kafka-source.js';
-import { toWire, unpackBatch, type FromWorker, type ToWorker } from './kafka-thread-protocol.js';
+import { KeyTable, PackedRecordBatch, toWire, type FromWorker, type ToWorker } from './kafka-thread-protocol.js';
 import type { Source, SourceHandlers } from './source.js';
 
 /** The worker's compiled script: next to this file in dist/, or in dist/ when this file runs from src/ (tests). */
@@ -36,6 +36,7 @@ export class ThreadedKafkaSource implements Source {
   private stopped: (() => void) | null = null;
   private stopping = false;
   private readonly log: KafkaLogger;
+  private readonly keys = new KeyTable();
 
   constructor(private readonly opts: KafkaSourceOptions) {
     this.log = opts.logger ?? silentKafkaLogger;
@@ -71,7 +72,7 @@ export class ThreadedKafkaSource implements Source {
     switch (m.t) {
       case 'batch':
         try {
-          await h.onBatch({ partition: m.batch.partition, records: unpackBatch(m.batch) });
+          await h.onBatch(new PackedRecordBatch(m.batch, this.keys));
         } finally {
           this.post({ t: 'ack' });
         }

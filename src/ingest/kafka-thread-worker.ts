@@ -1,7 +1,8 @@
 /**
  * The Kafka consumer on a thread of its own (see kafka-thread-source.ts): a KafkaSource whose handlers forward
  * to the daemon's thread. Batches are posted and the next fetch goes on while the daemon models them, up to
- * MAX_IN_FLIGHT batches ahead; assignment and revocation wait for the daemon's answer, and come after every
+ * MAX_RECORDS_IN_FLIGHT records ahead (kafkajs does not fetch while a batch is in hand, so a deeper queue keeps
+ * it fetching through the daemon's slower moments, such as a stream's first fit); assignment and revocation wait for the daemon's answer, and come after every
  * batch posted before them, so checkpoints still cover exactly what was processed.
  */
 import { parentPort, workerData } from 'node:worker_threads';
@@ -9,7 +10,8 @@ import type { KafkaLogger } from './kafka-client.js';
 import { KafkaSource } from './kafka-source.js';
 import { fromWire, packBatch, type FromWorker, type ToWorker, type WireOptions } from './kafka-thread-protocol.js';
 
-const MAX_IN_FLIGHT = 2;
+/** About 8 MB of small JSON events; always at least one batch. */
+const MAX_RECORDS_IN_FLIGHT = 100_000;
 
 const port = parentPort;
 if (port === null) throw new Error('kafka-thread-worker must run as a worker thread');
@@ -26,6 +28,8 @@ const source = new KafkaSource(fromWire(workerData as WireOptions, logger));
 let nextId = 0;
 const waiting = new Map<number, (v: [string, number][] | null) => void>();
 let inFlight = 0;
+let recordsInFlight = 0;
+const sizes: number[] = [];
 let wake: (() => void) | null = null;
 
 function ask(m: { t: 'assigned' | 'revoked'; partitions: string[] }): Promise<[string, number][] | null> {
@@ -40,6 +44,7 @@ port.on('message', (m: ToWorker) => {
     waiting.delete(m.id);
   } else if (m.t === 'ack') {
     inFlight--;
+    recordsInFlight -= sizes.shift() ?? 0;
     const w = wake;
     wake = null;
     w?.();
@@ -59,9 +64,11 @@ const status = setInterval(() => post({ t: 'status', lag: [...source.lag()], rea
 source
   .start({
     onBatch: async (batch) => {
-      while (inFlight >= MAX_IN_FLIGHT) await new Promise<void>((resolve) => (wake = resolve));
+      while (inFlight > 0 && recordsInFlight + batch.length > MAX_RECORDS_IN_FLIGHT) await new Promise<void>((resolve) => (wake = resolve));
       inFlight++;
-      const { batch: packed, transfer } = packBatch(batch.partition, batch.records);
+      recordsInFlight += batch.length;
+      sizes.push(batch.length);
+      const { batch: packed, transfer } = packBatch(batch);
       post({ t: 'batch', batch: packed }, transfer);
     },
     onAssigned: async (partitions) => new Map((await ask({ t: 'assigned', partitions })) ?? []),

@@ -284,6 +284,7 @@ export function makeMessageDecoder(config: MessageDecoding, options: MessageDeco
   const time = cfg.time ?? { from: 'record' as const };
   const key = cfg.key;
   let lastKey: Buffer | null = null;
+  let lastKeyText: string | null = null;
   let lastKeyStream = '';
 
   const headerText = (r: RawRecord, name: string): string | undefined => {
@@ -304,15 +305,31 @@ export function makeMessageDecoder(config: MessageDecoding, options: MessageDeco
     }
     let k: string | undefined;
     if (key.from === 'message_key') {
-      // Most keys repeat: compare bytes with the last key instead of decoding and interning a string per message.
-      if (r.key !== null && lastKey !== null && r.key.length === lastKey.length && r.key.equals(lastKey)) {
-        out.stream = lastKeyStream;
-        return null;
-      }
-      k = r.key === null ? undefined : r.key.toString('utf8');
-      if (k !== undefined && k.length > 0 && r.key !== null) {
-        lastKey = Buffer.from(r.key);
-        lastKeyStream = names.get(k);
+      const rk = r.key;
+      if (typeof rk === 'string') {
+        // A key that crossed from the consumer thread as text: the same string object for a batch's records.
+        if (rk === lastKeyText) {
+          out.stream = lastKeyStream;
+          return null;
+        }
+        k = rk;
+        if (k.length > 0) {
+          lastKey = null;
+          lastKeyText = k;
+          lastKeyStream = names.get(k);
+        }
+      } else {
+        // Most keys repeat: compare bytes with the last key instead of decoding and interning a string per message.
+        if (rk !== null && lastKey !== null && rk.length === lastKey.length && rk.equals(lastKey)) {
+          out.stream = lastKeyStream;
+          return null;
+        }
+        k = rk === null ? undefined : rk.toString('utf8');
+        if (k !== undefined && k.length > 0 && rk !== null) {
+          lastKey = Buffer.from(rk);
+          lastKeyText = null;
+          lastKeyStream = names.get(k);
+        }
       }
     }
     else if (key.from === 'header') k = headerText(r, key.name);

@@ -10,8 +10,8 @@ export interface RawRecord {
   partition: string;
   /** Position within the partition (Kafka offset, or 0-based line index of a file). */
   offset: number;
-  /** Kafka message key (or null). */
-  key: Buffer | null;
+  /** Kafka message key: its bytes, or the same key as text when the bytes are valid UTF-8; or null. */
+  key: Buffer | string | null;
   /** The payload bytes (or a line of text for files). */
   value: Buffer | string | null;
   /** Record timestamp, epoch ms (Kafka timestamp; for files, 0 and the decoder reads the ts field). */
@@ -21,9 +21,27 @@ export interface RawRecord {
   topic: string;
 }
 
+/**
+ * One partition's records in offset order, read through a cursor. record(i) may fill and return the same object
+ * for every i, so that reading a batch allocates nothing per record: whoever keeps a record past the next call
+ * copies it (a shallow copy will do: keys, values and headers objects are never reused between records).
+ */
 export interface RecordBatch {
-  partition: string;
-  records: RawRecord[];
+  readonly partition: string;
+  readonly length: number;
+  record(i: number): RawRecord;
+}
+
+/** Copies of a batch's records, for a caller that keeps them (tests, tools); not for the per-event path. */
+export function copyRecords(batch: RecordBatch): RawRecord[] {
+  const out: RawRecord[] = [];
+  for (let i = 0; i < batch.length; i++) out.push({ ...batch.record(i) });
+  return out;
+}
+
+/** A batch over records already in an array (files, tests). */
+export function recordBatch(partition: string, records: readonly RawRecord[]): RecordBatch {
+  return { partition, length: records.length, record: (i) => records[i] };
 }
 
 export interface SourceHandlers {
