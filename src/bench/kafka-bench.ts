@@ -97,7 +97,7 @@ async function produceEvents(brokers: string[], topic: string, n: number): Promi
   return true;
 }
 
-async function bareConsumer(brokers: string[], topic: string, n: number): Promise<number> {
+async function bareConsumer(brokers: string[], topic: string, n: number): Promise<{ rate: number; cpuPerEvent: number }> {
   const kafka = new Kafka({ clientId: 'modewatch-bench-bare', brokers, logLevel: logLevel.NOTHING });
   const consumer = kafka.consumer({ groupId: `bench-bare-${Date.now()}`, maxWaitTimeInMs: 1000 });
   let seen = 0;
@@ -105,8 +105,13 @@ async function bareConsumer(brokers: string[], topic: string, n: number): Promis
   let t1 = 0;
   let done!: () => void;
   const finished = new Promise<void>((res) => (done = res));
+  let c0: NodeJS.CpuUsage | null = null;
+  let c1: NodeJS.CpuUsage | null = null;
   consumer.on(consumer.events.GROUP_JOIN, () => {
-    if (t0 === 0) t0 = performance.now();
+    if (t0 === 0) {
+      t0 = performance.now();
+      c0 = process.cpuUsage();
+    }
   });
   await consumer.connect();
   await consumer.subscribe({ topics: [topic], fromBeginning: true });
@@ -115,16 +120,18 @@ async function bareConsumer(brokers: string[], topic: string, n: number): Promis
       seen += batch.messages.length;
       if (seen >= n && t1 === 0) {
         t1 = performance.now();
+        c1 = process.cpuUsage(c0 ?? undefined);
         done();
       }
     },
   });
   await finished;
   await consumer.disconnect();
-  return n / ((t1 - t0) / 1000);
+  const cpu = c1 as NodeJS.CpuUsage | null;
+  return { rate: n / ((t1 - t0) / 1000), cpuPerEvent: cpu === null ? NaN : (cpu.user + cpu.system) / n };
 }
 
-async function daemonPipeline(brokers: string[], topic: string, n: number, dir: string): Promise<{ rate: number; checkpoints: string; busy: number }> {
+async function daemonPipeline(brokers: string[], topic: string, n: number, dir: string): Promise<{ rate: number; checkpoints: string; busy: number; cpuPerEvent: number }> {
   await mkdir(dir, { recursive: true });
   const configPath = join(dir, 'bench.yaml');
   await writeFile(
@@ -155,13 +162,15 @@ async function daemonPipeline(brokers: string[], topic: string, n: number, dir: 
   const running = await startDaemon(config, pino({ level: 'error' }, pino.destination(2)), (e) => note(`daemon failed: ${e.message}`));
   // startDaemon resolves once the group is joined and the partition assigned.
   const t0 = performance.now();
+  const c0 = process.cpuUsage();
   const registry = running.registry;
   while (registry.accepted + [...registry.rejections.values()].reduce((a, b) => a + b, 0) < n) await new Promise((r) => setTimeout(r, 2));
   const t1 = performance.now();
+  const cpu = process.cpuUsage(c0);
   const busy = running.health.busySeconds / ((t1 - t0) / 1000);
   const every = `${config.checkpoint.everyEvents} events or ${config.checkpoint.everySeconds} s`;
   await running.stop();
-  return { rate: n / ((t1 - t0) / 1000), checkpoints: every, busy };
+  return { rate: n / ((t1 - t0) / 1000), checkpoints: every, busy, cpuPerEvent: (cpu.user + cpu.system) / n };
 }
 
 // -------------------------------------------------------------------------------------------------- memory
@@ -239,12 +248,13 @@ async function main(): Promise<void> {
     const daemon: number[] = [];
     let checkpoints = '';
     for (let r = 1; r <= rounds; r++) {
-      bare.push(await bareConsumer(broker.brokers, topic, n));
-      emit({ bench: 'kafka/bare_consumer_round', value: Math.round(bare[r - 1]), unit: 'events/s', round: r });
+      const b = await bareConsumer(broker.brokers, topic, n);
+      bare.push(b.rate);
+      emit({ bench: 'kafka/bare_consumer_round', value: Math.round(b.rate), unit: 'events/s', round: r, process_cpu_us_per_event: round3(b.cpuPerEvent) });
       const d = await daemonPipeline(broker.brokers, topic, n, join(dir, `round-${r}`));
       daemon.push(d.rate);
       checkpoints = d.checkpoints;
-      emit({ bench: 'kafka/daemon_round', value: Math.round(d.rate), unit: 'events/s', round: r, ratio: Math.round((d.rate / bare[r - 1]) * 1000) / 1000, modelling_busy_fraction: Math.round(d.busy * 1000) / 1000 });
+      emit({ bench: 'kafka/daemon_round', value: Math.round(d.rate), unit: 'events/s', round: r, ratio: round3(d.rate / bare[r - 1]), modelling_busy_fraction: round3(d.busy), process_cpu_us_per_event: round3(d.cpuPerEvent) });
     }
     const mb = median(bare);
     const md = median(daemon);
@@ -262,6 +272,10 @@ function positiveInteger(name: string, fallback: number): number {
   const v = raw === undefined || raw === '' ? fallback : Number(raw);
   if (!Number.isInteger(v) || v < 1) throw new Error(`${name} must be a positive integer, got ${raw}`);
   return v;
+}
+
+function round3(x: number): number {
+  return Math.round(x * 1000) / 1000;
 }
 
 function median(xs: number[]): number {
