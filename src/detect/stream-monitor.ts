@@ -351,7 +351,8 @@ export class StreamMonitor implements Monitor {
   private bootstrap(): void {
     const cfg = this.config;
     const data = (this.boot as Float64Array).subarray(0, this.bootCount);
-    const opts = { seed: cfg.seed, restarts: 3, tol: 1e-5 };
+    // Stop at the BIC elbow: warm-up (learnStructure) still adds a component for a region the fit explains badly.
+    const opts = { seed: cfg.seed, restarts: 3, tol: 1e-5, stopAtFirstRise: true };
     let mixture: Mixture1D;
     if (cfg.scale === 'auto') {
       const sel = selectScaleAndMixture1D(data, ['identity', 'log', 'log1p'], 1, cfg.maxComponents, opts);

@@ -23,6 +23,15 @@ export interface BatchFitOptions {
   regVar?: number;
 }
 
+export interface SelectionOptions extends BatchFitOptions {
+  /**
+   * Stop at the first k whose BIC is above the previous k's instead of fitting every k (the usual elbow: past
+   * it, added components only split or duplicate modes). Cheaper for callers that refine the model afterwards,
+   * such as a stream monitor's bootstrap; `modewatch fit` reports every k and does not set it.
+   */
+  stopAtFirstRise?: boolean;
+}
+
 export interface BatchFit {
   mixture: Mixture1D;
   /** Log-likelihood of the data in the stream's own units (Jacobian of the scale included). */
@@ -52,10 +61,11 @@ export function selectMixture1D(
   scale: ScaleName,
   kMin: number,
   kMax: number,
-  options: BatchFitOptions = {},
+  options: SelectionOptions = {},
 ): ModelSelection {
   if (!(kMin >= 1 && kMax >= kMin)) throw new Error(`k range ${kMin}..${kMax} is empty`);
-  const opts = { ...DEFAULTS, ...options };
+  const { stopAtFirstRise, ...fitOptions } = options;
+  const opts = { ...DEFAULTS, ...fitOptions };
   const prepared = prepare(x, scale);
   const rng = new Random(opts.seed);
   let best: BatchFit | null = null;
@@ -63,8 +73,10 @@ export function selectMixture1D(
   for (let k = kMin; k <= kMax; k++) {
     if (k > prepared.n) break;
     const fit = fitPrepared(prepared, k, opts, rng);
+    const previous = candidates.length > 0 ? candidates[candidates.length - 1].bic : Infinity;
     candidates.push({ k, logLikelihood: fit.logLikelihood, bic: fit.bic });
     if (best === null || fit.bic < best.bic) best = fit;
+    if (stopAtFirstRise === true && fit.bic > previous) break;
   }
   if (best === null) throw new Error('no data to fit');
   return { best, candidates };
@@ -80,7 +92,7 @@ export function selectScaleAndMixture1D(
   scales: readonly ScaleName[],
   kMin: number,
   kMax: number,
-  options: BatchFitOptions = {},
+  options: SelectionOptions = {},
 ): ModelSelection & { scale: ScaleName; byScale: { scale: ScaleName; bic: number }[] } {
   let chosen: (ModelSelection & { scale: ScaleName }) | null = null;
   const byScale: { scale: ScaleName; bic: number }[] = [];

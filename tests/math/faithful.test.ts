@@ -44,4 +44,12 @@ describe('batch EM on Old Faithful waiting times', () => {
     const bics = sel.candidates.map((c) => c.bic);
     expect(Math.min(...bics)).toBe(bics[1]);
   });
+
+  it('stopping at the first rise of BIC fits k = 1..3 only and chooses the same model', () => {
+    const full = selectMixture1D(waiting, 'identity', 1, 4, { seed: 3 });
+    const elbow = selectMixture1D(waiting, 'identity', 1, 4, { seed: 3, stopAtFirstRise: true });
+    expect(elbow.candidates.map((c) => c.k)).toEqual([1, 2, 3]);
+    expect(elbow.candidates).toEqual(full.candidates.slice(0, 3));
+    expect(elbow.best.mixture).toEqual(full.best.mixture);
+  });
 });
