@@ -3,7 +3,7 @@
  * (kafka-thread-source.ts), and how a batch of records travels between them: packed into a few typed arrays
  * whose buffers are transferred, not copied record by record.
  */
-import { isUtf8 } from 'node:buffer';
+import { isAscii, isUtf8 } from 'node:buffer';
 import type { KafkaLogger } from './kafka-client.js';
 import type { KafkaSourceOptions } from './kafka-source.js';
 import type { RawRecord, RecordBatch } from './source.js';
@@ -165,6 +165,8 @@ export class PackedRecordBatch implements RecordBatch {
   /** The bytes as Latin-1 text, one character a byte: a value whose bytes are all ASCII is a slice of it (the
    *  same text UTF-8 decoding gives), made with one decoding call per batch instead of one per record. */
   private readonly text: string;
+  /** True when every byte of the batch is ASCII (the usual case): then no value needs checking on its own. */
+  private readonly allAscii: boolean;
   /** Index into b.headers of the next record with headers (records are read in order; rewinds if not). */
   private h = 0;
 
@@ -176,6 +178,7 @@ export class PackedRecordBatch implements RecordBatch {
     this.length = b.n;
     this.buf = Buffer.from(b.bytes.buffer, b.bytes.byteOffset, b.bytes.byteLength);
     this.text = this.buf.toString('latin1');
+    this.allAscii = isAscii(this.buf);
     this.rec = { partition: b.partition, offset: 0, key: null, value: null, timestamp: 0, headers: NO_HEADERS as RawRecord['headers'], topic: b.topic };
   }
 
@@ -189,6 +192,7 @@ export class PackedRecordBatch implements RecordBatch {
     const vs = b.valueStart[i];
     const ve = b.valueEnd[i];
     if (vs < 0) r.value = null;
+    else if (this.allAscii) r.value = this.text.slice(vs, ve);
     else {
       const bytes = b.bytes;
       let j = vs;
