@@ -91,26 +91,8 @@ export function packBatch(batch: RecordBatch): { batch: PackedBatch; transfer: A
   const valueEnd = new Int32Array(n);
   let at = 0;
   for (let i = 0; i < n; i++) {
-    const k = keysHeld[i];
-    if (k === null) {
-      keyStart[i] = -1;
-      keyEnd[i] = -1;
-    } else {
-      bytes.set(k, at);
-      keyStart[i] = at;
-      at += k.length;
-      keyEnd[i] = at;
-    }
-    const v = valuesHeld[i];
-    if (v === null) {
-      valueStart[i] = -1;
-      valueEnd[i] = -1;
-    } else {
-      bytes.set(v, at);
-      valueStart[i] = at;
-      at += v.length;
-      valueEnd[i] = at;
-    }
+    at = place(keysHeld[i], bytes, at, keyStart, keyEnd, i);
+    at = place(valuesHeld[i], bytes, at, valueStart, valueEnd, i);
   }
   keysHeld.fill(null); // keep no fetched buffer alive past the batch
   valuesHeld.fill(null);
@@ -118,6 +100,19 @@ export function packBatch(batch: RecordBatch): { batch: PackedBatch; transfer: A
     batch: { partition: batch.partition, topic, n, offsets, timestamps, bytes, keyStart, keyEnd, valueStart, valueEnd, headers },
     transfer: [bytes.buffer, keyStart.buffer, keyEnd.buffer, valueStart.buffer, valueEnd.buffer, offsets.buffer, timestamps.buffer] as ArrayBuffer[],
   };
+}
+
+/** Copies b (if any) to bytes at `at` and records where it went in start[i]/end[i] (-1 for none); returns the next free place. */
+function place(b: Buffer | null, bytes: Uint8Array, at: number, start: Int32Array, end: Int32Array, i: number): number {
+  if (b === null) {
+    start[i] = -1;
+    end[i] = -1;
+    return at;
+  }
+  bytes.set(b, at);
+  start[i] = at;
+  end[i] = at + b.length;
+  return at + b.length;
 }
 
 const NO_HEADERS: Readonly<Record<string, Buffer | string | undefined>> = Object.freeze({});
