@@ -43,6 +43,30 @@ describe('records between the consumer thread and the daemon thread', () => {
     expect(Object.keys(back[0].headers)).toEqual([]);
   });
 
+  it('the key table tells apart keys whose hashes collide, and keys that differ only past ASCII', () => {
+    // Two keys with the same 32-bit FNV-1a hash, found once by a search over 3 million generated keys.
+    const fnv = (s: string) => {
+      let h = 0x811c9dc5;
+      for (const b of Buffer.from(s)) h = Math.imul(h ^ b, 0x01000193);
+      return h;
+    };
+    const [a, b] = ['svc-3o4mm7', 'svc-tnkssj'];
+    expect(fnv(a)).toBe(fnv(b));
+    const table = new KeyTable();
+    const at = (s: string | Buffer) => {
+      const bytes = Buffer.isBuffer(s) ? s : Buffer.from(s);
+      return table.key(bytes, 0, bytes.length);
+    };
+    for (let round = 0; round < 3; round++) {
+      expect(at(a)).toBe(a);
+      expect(at(b)).toBe(b);
+      expect(at('ключ-1')).toBe('ключ-1');
+      expect(at('ключ-2')).toBe('ключ-2');
+      expect(Buffer.from(at(Buffer.from([0xff, 0x01])) as Buffer).toString('hex')).toBe('ff01');
+      expect(Buffer.from(at(Buffer.from([0xff, 0x02])) as Buffer).toString('hex')).toBe('ff02');
+    }
+  });
+
   it('options cross with their topic patterns and without the logger', () => {
     const wire = toWire({ brokers: ['127.0.0.1:9092'], clientId: 'c', groupId: 'g', topics: [/^lat\./i], logger: { debug() {}, info() {}, warn() {}, error() {} } });
     const cloned = structuredClone(wire);

@@ -123,7 +123,8 @@ const NO_HEADERS: Readonly<Record<string, Buffer | string | undefined>> = Object
  * bytes are valid UTF-8, which decoders treat as they treat the bytes), or as bytes. Bounded: cleared when full.
  */
 export class KeyTable {
-  private readonly byHash = new Map<number, { bytes: Uint8Array; key: string | Buffer }>();
+  /** A key and, unless it is ASCII text (whose characters are its bytes), a copy of its bytes to compare with. */
+  private readonly byHash = new Map<number, { key: string | Buffer; bytes: Uint8Array | null }>();
 
   constructor(private readonly capacity = 100_000) {}
 
@@ -131,7 +132,7 @@ export class KeyTable {
     let h = 0x811c9dc5;
     for (let j = start; j < end; j++) h = Math.imul(h ^ bytes[j], 0x01000193);
     const hit = this.byHash.get(h);
-    if (hit !== undefined && sameBytes(hit.bytes, bytes, start, end)) return hit.key;
+    if (hit !== undefined && sameKey(hit, bytes, start, end)) return hit.key;
     const own = bytes.slice(start, end);
     const buf = Buffer.from(own.buffer, own.byteOffset, own.byteLength);
     const text = buf.toString('utf8');
@@ -139,15 +140,24 @@ export class KeyTable {
     const key = text.includes('\uFFFD') && !isUtf8(buf) ? buf : text;
     if (hit === undefined) {
       if (this.byHash.size >= this.capacity) this.byHash.clear();
-      this.byHash.set(h, { bytes: own, key });
+      // Valid UTF-8 decodes to as many characters as bytes only when every byte is ASCII.
+      this.byHash.set(h, { key, bytes: typeof key === 'string' && key.length === own.length ? null : own });
     }
     return key;
   }
 }
 
-function sameBytes(a: Uint8Array, b: Uint8Array, start: number, end: number): boolean {
-  if (a.length !== end - start) return false;
-  for (let j = 0; j < a.length; j++) if (a[j] !== b[start + j]) return false;
+function sameKey(e: { key: string | Buffer; bytes: Uint8Array | null }, b: Uint8Array, start: number, end: number): boolean {
+  const n = end - start;
+  if (e.bytes === null) {
+    const t = e.key as string;
+    if (t.length !== n) return false;
+    for (let j = 0; j < n; j++) if (t.charCodeAt(j) !== b[start + j]) return false;
+    return true;
+  }
+  const a = e.bytes;
+  if (a.length !== n) return false;
+  for (let j = 0; j < n; j++) if (a[j] !== b[start + j]) return false;
   return true;
 }
 
