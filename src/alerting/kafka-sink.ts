@@ -4,8 +4,9 @@
  * the caller's: connected before use, disconnected by the caller after close().
  */
 import type { Producer } from 'kafkajs';
-import type { AlertSink, AlertTransition } from '../detect/alert.js';
-import { DeliveryQueue, type DeliveryOptions, type ObservableSink, type SinkStats } from './delivery-queue.js';
+import type { AlertTransition } from '../detect/alert.js';
+import { DeliveryQueue, type DeliveryOptions } from './delivery-queue.js';
+import { QueuedSink } from './queued-sink.js';
 
 export interface KafkaSinkOptions {
   producer: Producer;
@@ -16,15 +17,12 @@ export interface KafkaSinkOptions {
   delivery?: Omit<DeliveryOptions, 'name' | 'maxBatch'>;
 }
 
-export class KafkaSink implements AlertSink, ObservableSink {
-  readonly name: string;
-  private readonly queue: DeliveryQueue<AlertTransition>;
-
+export class KafkaSink extends QueuedSink {
   constructor(options: KafkaSinkOptions) {
     if (!options.topic) throw new TypeError('kafka alert sink: topic must be a non-empty string');
-    this.name = options.name ?? 'kafka';
+    const name = options.name ?? 'kafka';
     const { producer, topic } = options;
-    this.queue = new DeliveryQueue<AlertTransition>(
+    const queue = new DeliveryQueue<AlertTransition>(
       (batch, signal) =>
         abortable(
           producer.send({
@@ -38,20 +36,9 @@ export class KafkaSink implements AlertSink, ObservableSink {
           }),
           signal,
         ),
-      { ...options.delivery, name: this.name, maxBatch: options.maxBatch ?? 100 },
+      { ...options.delivery, name, maxBatch: options.maxBatch ?? 100 },
     );
-  }
-
-  publish(transition: AlertTransition): void {
-    this.queue.push(transition);
-  }
-
-  stats(): SinkStats {
-    return this.queue.stats();
-  }
-
-  close(): Promise<void> {
-    return this.queue.close();
+    super(name, queue);
   }
 }
 

@@ -2,8 +2,9 @@
  * Webhook sink: POSTs each AlertTransition, as JSON, to one URL. A 2xx answer is delivered;
  * anything else goes through the shared retry/backoff rules (src/alerting/delivery-queue.ts).
  */
-import type { AlertSink, AlertTransition } from '../detect/alert.js';
-import { DeliveryQueue, type DeliveryOptions, type ObservableSink, type SinkStats } from './delivery-queue.js';
+import type { AlertTransition } from '../detect/alert.js';
+import { DeliveryQueue, type DeliveryOptions } from './delivery-queue.js';
+import { QueuedSink } from './queued-sink.js';
 import { postJson } from './http-post.js';
 
 export interface WebhookSinkOptions {
@@ -15,31 +16,16 @@ export interface WebhookSinkOptions {
   delivery?: Omit<DeliveryOptions, 'name' | 'maxBatch'>;
 }
 
-export class WebhookSink implements AlertSink, ObservableSink {
-  readonly name: string;
-  private readonly queue: DeliveryQueue<AlertTransition>;
-
+export class WebhookSink extends QueuedSink {
   constructor(options: WebhookSinkOptions) {
     const url = checkHttpUrl(options.url, 'webhook url');
-    this.name = options.name ?? 'webhook';
+    const name = options.name ?? 'webhook';
     const headers: Record<string, string> = {};
     if (options.bearerToken) headers.authorization = `Bearer ${options.bearerToken}`;
-    this.queue = new DeliveryQueue<AlertTransition>(
-      async ([transition], signal) => postJson(url, transition, headers, signal),
-      { ...options.delivery, name: this.name, maxBatch: 1 },
+    super(
+      name,
+      new DeliveryQueue<AlertTransition>(async ([transition], signal) => postJson(url, transition, headers, signal), { ...options.delivery, name, maxBatch: 1 }),
     );
-  }
-
-  publish(transition: AlertTransition): void {
-    this.queue.push(transition);
-  }
-
-  stats(): SinkStats {
-    return this.queue.stats();
-  }
-
-  close(): Promise<void> {
-    return this.queue.close();
   }
 }
 

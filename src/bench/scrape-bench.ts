@@ -12,13 +12,12 @@
 import { monitorEventLoopDelay } from 'node:perf_hooks';
 import { pathToFileURL } from 'node:url';
 import { Counter, Gauge, Registry } from 'prom-client';
-import { monitorConfig, type MonitorConfig } from '../detect/monitor-config.js';
+import { knownMixture, monitorConfig, type KnownComponent } from '../detect/monitor-config.js';
 import { HealthState } from '../export/daemon-health.js';
 import { METRICS } from '../export/metric-names.js';
 import { renderModelMetricsBuffer, unitFamily } from '../export/model-exposition.js';
 import { MetricsExporter } from '../export/render-metrics.js';
 import { EventSlot } from '../ingest/event.js';
-import { Mixture1D } from '../math/mixture1d.js';
 import { Random } from '../math/random.js';
 import { StreamRegistry } from '../streams/stream-registry.js';
 
@@ -28,7 +27,7 @@ export interface BenchResult {
   unit: string;
 }
 
-const KINDS: { unit: string; known: MonitorConfig['known']; mix: Mixture1D }[] = [
+const KINDS: { unit: string; known: KnownComponent[] }[] = [
   {
     unit: 'milliseconds',
     known: [
@@ -36,7 +35,6 @@ const KINDS: { unit: string; known: MonitorConfig['known']; mix: Mixture1D }[] =
       { weight: 0.25, family: 'lognormal', location: 180, spread: 0.25 },
       { weight: 0.05, family: 'lognormal', location: 900, spread: 0.2 },
     ],
-    mix: new Mixture1D('log', [0.7, 0.25, 0.05], [Math.log(40), Math.log(180), Math.log(900)], [0.2, 0.25, 0.2]),
   },
   {
     unit: 'bytes',
@@ -45,7 +43,6 @@ const KINDS: { unit: string; known: MonitorConfig['known']; mix: Mixture1D }[] =
       { weight: 0.3, family: 'lognormal', location: 40_000, spread: 0.3 },
       { weight: 0.2, family: 'lognormal', location: 900_000, spread: 0.3 },
     ],
-    mix: new Mixture1D('log', [0.5, 0.3, 0.2], [Math.log(2_000), Math.log(40_000), Math.log(900_000)], [0.3, 0.3, 0.3]),
   },
   {
     unit: '',
@@ -54,13 +51,13 @@ const KINDS: { unit: string; known: MonitorConfig['known']; mix: Mixture1D }[] =
       { weight: 0.4, family: 'normal', location: 0, spread: 2 },
       { weight: 0.2, family: 'normal', location: 10, spread: 2 },
     ],
-    mix: new Mixture1D('identity', [0.4, 0.4, 0.2], [-10, 0, 10], [2, 2, 2]),
   },
 ];
 
 /** A registry of `streams` streams with 3-component models, each fed `events` events. */
 export function scrapeFixture(streams: number, events = 8): { registry: StreamRegistry; feed: (n: number) => void } {
   const configs = KINDS.map((k) => monitorConfig({ unit: k.unit, known: k.known, warmupEvents: 100 }));
+  const mixtures = KINDS.map((k) => knownMixture(k.known));
   const kindOf = (name: string) => Number(name.slice(name.lastIndexOf('-') + 1)) % KINDS.length;
   const registry = new StreamRegistry({
     maxStreams: streams,
@@ -78,7 +75,7 @@ export function scrapeFixture(streams: number, events = 8): { registry: StreamRe
       const name = names[next];
       next = (next + 1) % streams;
       slot.stream = name;
-      slot.value = KINDS[kindOf(name)].mix.sample(rng);
+      slot.value = mixtures[kindOf(name)].sample(rng);
       slot.ts = ts++;
       slot.offset++;
       registry.observe(slot);

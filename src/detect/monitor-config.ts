@@ -2,6 +2,7 @@
  * Per-stream settings of a monitor, with defaults and validation. Plain data: the config room
  * parses YAML/flags into this shape; detection never reads files or the environment.
  */
+import { Mixture1D } from '../math/mixture1d.js';
 import type { ScaleName } from '../math/scale.js';
 
 /** A component declared as normal in the configuration instead of learned. */
@@ -13,6 +14,17 @@ export interface KnownComponent {
   location: number;
   /** Spread in the stream's units: the sd for normal; for lognormal the sd of log(x). */
   spread: number;
+}
+
+/** The mixture that known components describe, on the scale their family implies (lognormal: log). */
+export function knownMixture(known: readonly KnownComponent[]): Mixture1D {
+  const log = known[0].family === 'lognormal';
+  return new Mixture1D(
+    log ? 'log' : 'identity',
+    known.map((c) => c.weight),
+    known.map((c) => (log ? Math.log(c.location) : c.location)),
+    known.map((c) => c.spread),
+  );
 }
 
 export interface MonitorConfig {

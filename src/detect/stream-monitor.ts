@@ -18,7 +18,7 @@
  */
 import { selectMixture1D, selectScaleAndMixture1D } from '../math/batch-em1d.js';
 import { bhattacharyyaGaussian } from '../math/distances.js';
-import { Mixture1D, summarizeComponent } from '../math/mixture1d.js';
+import { summarizeComponent, type Mixture1D } from '../math/mixture1d.js';
 import type { ValueRejection } from '../math/reject.js';
 import { checkValue, checkValueByCode, scaleCode, toModelByCode, type ScaleCode, type ScaleName } from '../math/scale.js';
 import { OnlineMixture1D } from '../math/stepwise-em1d.js';
@@ -26,11 +26,11 @@ import type { AlertEvidence, AlertKind, ComponentView } from './alert.js';
 import type { ActiveAlert, TransitionListener } from './alert-book.js';
 import { AlertDesk } from './alert-desk.js';
 import { fmt, pct } from './evidence-text.js';
-import { SurpriseTracker } from './surprise.js';
+import { SurpriseTracker, type SurpriseFields } from './surprise.js';
 import { C_DN_A, C_DN_B, C_DN_LB, C_UP_A, C_UP_B, C_UP_LB, C_VA_A, C_VA_B, C_VA_LB, WEIGHT_CONSTS, setWeightAlternatives } from './weight-alternatives.js';
 import { CusumBank } from './cusum-bank.js';
 import type { Monitor, MonitorPhase } from './monitor.js';
-import type { MonitorConfig } from './monitor-config.js';
+import { knownMixture, type MonitorConfig } from './monitor-config.js';
 import { NoveltyGrid } from './novelty-grid.js';
 
 /** The CUSUMs kept per reference component. */
@@ -136,7 +136,7 @@ export class StreamMonitor implements Monitor {
 
   /** Log-likelihood per event of recent quiet events under the reference (nats, model scale), or null before warm-up. */
   logLikelihoodPerEvent(): number | null {
-    return this.phase === 'bootstrap' || this.surprise.count === 0 ? null : -this.surprise.mean;
+    return this.phase === 'bootstrap' ? null : this.surprise.logLikelihoodPerEvent();
   }
 
   /** A stream of numbers has dimension 1. */
@@ -392,16 +392,9 @@ export class StreamMonitor implements Monitor {
   }
 
   private startFromKnown(): void {
-    const known = this.config.known ?? [];
-    const log = known[0].family === 'lognormal';
-    this.scaleName = log ? 'log' : 'identity';
+    const m = knownMixture(this.config.known ?? []);
+    this.scaleName = m.scale;
     this.scaleCode = scaleCode(this.scaleName);
-    const m = new Mixture1D(
-      this.scaleName,
-      known.map((c) => c.weight),
-      known.map((c) => (log ? Math.log(c.location) : c.location)),
-      known.map((c) => c.spread),
-    );
     this.boot = null;
     this.ref = OnlineMixture1D.fromMixture(m, this.modelOptions(this.config.referenceWindow, this.config.referenceHalfLifeMs), 1e9);
     this.cur = OnlineMixture1D.fromMixture(m, this.modelOptions(this.config.currentWindow, this.config.currentHalfLifeMs), 0);
@@ -498,9 +491,7 @@ export class StreamMonitor implements Monitor {
       consts: Array.from(this.consts),
       recentShare: Array.from(this.recentShare),
       locConsts: Array.from(this.locConsts),
-      surpriseMean: this.surprise.mean,
-      surpriseVar: this.surprise.variance,
-      surpriseCount: this.surprise.count,
+      ...this.surprise.exportFields(),
       accepted: this.accepted,
       armedAt: this.armedAt,
       lastTs: this.lastTs,
@@ -529,9 +520,7 @@ export class StreamMonitor implements Monitor {
     m.consts.set(s.consts);
     m.recentShare.set(s.recentShare);
     m.locConsts.set(s.locConsts);
-    m.surprise.mean = s.surpriseMean;
-    m.surprise.variance = s.surpriseVar;
-    m.surprise.count = s.surpriseCount;
+    m.surprise.importFields(s);
     m.accepted = s.accepted;
     m.armedAt = s.armedAt;
     m.lastTs = s.lastTs;
@@ -541,7 +530,7 @@ export class StreamMonitor implements Monitor {
   }
 }
 
-export interface MonitorState {
+export interface MonitorState extends SurpriseFields {
   version: 1;
   stream: string;
   phase: MonitorPhase;
@@ -556,9 +545,6 @@ export interface MonitorState {
   consts: number[];
   recentShare: number[];
   locConsts: number[];
-  surpriseMean: number;
-  surpriseVar: number;
-  surpriseCount: number;
   accepted: number;
   armedAt: number;
   lastTs: number;

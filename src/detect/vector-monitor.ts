@@ -38,7 +38,7 @@ import type { AlertEvidence, AlertKind, ComponentView } from './alert.js';
 import type { ActiveAlert, TransitionListener } from './alert-book.js';
 import { AlertDesk } from './alert-desk.js';
 import { fmt, pct } from './evidence-text.js';
-import { SurpriseTracker } from './surprise.js';
+import { SurpriseTracker, type SurpriseFields } from './surprise.js';
 import { C_DN_A, C_DN_B, C_DN_LB, C_UP_A, C_UP_B, C_UP_LB, C_VA_A, C_VA_B, C_VA_LB, WEIGHT_CONSTS, setWeightAlternatives } from './weight-alternatives.js';
 import { CusumBank } from './cusum-bank.js';
 import type { MonitorConfig } from './monitor-config.js';
@@ -420,7 +420,7 @@ export class VectorStreamMonitor {
 
   /** Log-likelihood per event of recent quiet events under the reference (nats), or null before warm-up. */
   logLikelihoodPerEvent(): number | null {
-    return this.phase === 'bootstrap' || this.surprise.count === 0 ? null : -this.surprise.mean;
+    return this.phase === 'bootstrap' ? null : this.surprise.logLikelihoodPerEvent();
   }
 
   private idsOf(model: MvMixture): Int32Array | null {
@@ -683,9 +683,7 @@ export class VectorStreamMonitor {
       bgCenter: Array.from(this.bgCenter),
       bgScale: Array.from(this.bgScale),
       bgConst: this.bgConst,
-      surpriseMean: this.surprise.mean,
-      surpriseVar: this.surprise.variance,
-      surpriseCount: this.surprise.count,
+      ...this.surprise.exportFields(),
       accepted: this.accepted,
       lastTs: this.lastTs,
       lastOffset: this.lastOffset,
@@ -717,9 +715,7 @@ export class VectorStreamMonitor {
     m.bgCenter.set(s.bgCenter);
     m.bgScale.set(s.bgScale);
     m.bgConst = s.bgConst;
-    m.surprise.mean = s.surpriseMean;
-    m.surprise.variance = s.surpriseVar;
-    m.surprise.count = s.surpriseCount;
+    m.surprise.importFields(s);
     m.accepted = s.accepted;
     m.lastTs = s.lastTs;
     m.lastOffset = s.lastOffset;
@@ -728,7 +724,7 @@ export class VectorStreamMonitor {
   }
 }
 
-export interface VectorMonitorState {
+export interface VectorMonitorState extends SurpriseFields {
   version: 1;
   stream: string;
   phase: VectorMonitorPhase;
@@ -750,9 +746,6 @@ export interface VectorMonitorState {
   bgCenter: number[];
   bgScale: number[];
   bgConst: number;
-  surpriseMean: number;
-  surpriseVar: number;
-  surpriseCount: number;
   accepted: number;
   lastTs: number;
   lastOffset: number;
