@@ -6,7 +6,7 @@
  */
 import type { AlertEvidence, AlertKind, ComponentView } from './alert.js';
 import { AlertBook, type ActiveAlert, type TransitionListener } from './alert-book.js';
-import type { CusumBank } from './cusum-bank.js';
+import type { RatioCusums, ScoreCusums } from './cusum-bank.js';
 import type { MonitorConfig } from './monitor-config.js';
 
 /** Alert sources that are not a shift statistic's index. */
@@ -38,38 +38,43 @@ export class AlertDesk {
   readonly owned: Uint8Array;
   pendingCount = 0;
   private readonly h: number;
-  private readonly quarter: number;
+  /** e^(h/4), e^h and e^(2h): the shift statistics are kept as ratios R = e^S (cusum-bank.ts). */
+  private readonly quarterRatio: number;
+  private readonly hRatio: number;
+  private readonly capRatio: number;
 
   constructor(
     stream: string,
     listener: TransitionListener,
     statistics: number,
     private readonly config: MonitorConfig,
-    private readonly shifts: CusumBank,
-    private readonly fit: CusumBank,
+    private readonly shifts: RatioCusums,
+    private readonly fit: ScoreCusums,
     private readonly hooks: DeskHooks,
   ) {
     this.book = new AlertBook(stream, listener);
     this.owned = new Uint8Array(statistics);
     this.h = config.threshold;
-    this.quarter = 0.25 * config.threshold;
+    this.quarterRatio = Math.exp(0.25 * config.threshold);
+    this.hRatio = Math.exp(config.threshold);
+    this.capRatio = Math.exp(2 * config.threshold);
   }
 
-  /** Whether statistic i, now at s, needs afterStep: near the threshold, or owned. Cheap enough for every event. */
-  needsAttention(i: number, s: number): boolean {
-    return s >= this.quarter || this.owned[i] !== FREE;
+  /** Whether statistic i, now at ratio R = e^S, needs afterStep: near the threshold, or owned. Cheap enough for every event. */
+  needsAttention(i: number, ratio: number): boolean {
+    return ratio >= this.quarterRatio || this.owned[i] !== FREE;
   }
 
-  /** After statistic i reached s: open an alert on a crossing; resolve (below a quarter) or cap (at 2h) an owned one. */
-  afterStep(i: number, s: number, eventCount: number, ts: number, offset: number): void {
+  /** After statistic i reached R = e^S: open an alert on a crossing (S >= h); resolve (S below h/4) or cap (S at 2h) an owned one. */
+  afterStep(i: number, ratio: number, eventCount: number, ts: number, offset: number): void {
     const o = this.owned[i];
     if (o !== FREE) {
       // Capped so that it can come back down when the change goes away.
-      if (s < this.quarter) {
+      if (ratio < this.quarterRatio) {
         if (o === OWNED) this.resolveOwned(i, ts, offset);
         else this.owned[i] = FREE;
-      } else this.shifts.cap(i, 2 * this.h);
-    } else if (s >= this.h) this.openShift(i, eventCount, ts);
+      } else this.shifts.capRatio(i, this.capRatio);
+    } else if (ratio >= this.hRatio) this.openShift(i, eventCount, ts);
   }
 
   private openShift(i: number, eventCount: number, ts: number): void {

@@ -5,7 +5,7 @@
  *  - per reference component, CUSUMs of the exact mixture log-likelihood ratio for its weight
  *    going up, down, or to almost nothing, and for its location moving up or down by a set
  *    number of its sds (Page 1954; the ratio of two mixtures that differ in one component is
- *    1 + r_k (f'_k/f_k - 1) with r_k its responsibility, so each costs one log per event);
+ *    1 + r_k (f'_k/f_k - 1) with r_k its responsibility; the CUSUMs multiply ratios, cusum-bank.ts);
  *  - a novelty grid for new modes (novelty-grid.ts), which gives birth to a component in the
  *    current model;
  *  - a fit CUSUM on the standardised surprise -log p_ref(y), for changes none of the others names.
@@ -27,11 +27,12 @@ import type { ActiveAlert, TransitionListener } from './alert-book.js';
 import { AlertDesk } from './alert-desk.js';
 import { fmt, pct } from './evidence-text.js';
 import { SurpriseTracker, type SurpriseFields } from './surprise.js';
-import { C_DN_A, C_DN_B, C_DN_LB, C_UP_A, C_UP_B, C_UP_LB, C_VA_A, C_VA_B, C_VA_LB, WEIGHT_CONSTS, setWeightAlternatives } from './weight-alternatives.js';
-import { CusumBank } from './cusum-bank.js';
+import { C_DN_A, C_DN_B, C_UP_A, C_UP_B, C_VA_A, C_VA_B, WEIGHT_CONSTS, setWeightAlternatives } from './weight-alternatives.js';
+import { RatioCusums, ScoreCusums } from './cusum-bank.js';
 import type { Monitor, MonitorPhase } from './monitor.js';
 import { knownMixture, type MonitorConfig } from './monitor-config.js';
 import { NoveltyGrid } from './novelty-grid.js';
+import { MONITOR_STATE_VERSION, currentShiftFields, type ShiftFields } from './state-version.js';
 
 /** The CUSUMs kept per reference component. */
 const W_UP = 0;
@@ -59,14 +60,16 @@ export class StreamMonitor implements Monitor {
   private bootCount = 0;
   private ref: OnlineMixture1D | null = null;
   private cur: OnlineMixture1D | null = null;
-  private readonly shifts: CusumBank;
-  private readonly fit = new CusumBank(1);
+  private readonly shifts: RatioCusums;
+  private readonly fit = new ScoreCusums(1);
   private readonly grid = new NoveltyGrid();
   private readonly consts: Float64Array;
   /** Per reference component: its mean and 1/sd on the model scale, as of the last housekeeping. */
   private readonly locConsts: Float64Array;
   /** e^(-λ²/2), the location alternatives' constant factor. */
   private readonly shiftPenalty: number = 0;
+  /** e^(h/2): an event is quiet while every shift statistic's ratio is below it. */
+  private readonly halfRatio: number = 0;
   /** Per reference component, a short moving average of its responsibility: what its weight is right now. */
   private readonly recentShare: Float64Array;
   private readonly surprise = new SurpriseTracker();
@@ -83,11 +86,12 @@ export class StreamMonitor implements Monitor {
     this.config = config;
     this.scaleName = config.scale === 'auto' ? 'identity' : config.scale;
     this.scaleCode = scaleCode(this.scaleName);
-    this.shifts = new CusumBank(config.capacity * PER_COMPONENT);
+    this.shifts = new RatioCusums(config.capacity * PER_COMPONENT);
     this.consts = new Float64Array(config.capacity * WEIGHT_CONSTS);
     this.recentShare = new Float64Array(config.capacity);
     this.locConsts = new Float64Array(2 * config.capacity);
     this.shiftPenalty = Math.exp(-0.5 * config.locationShiftSds * config.locationShiftSds);
+    this.halfRatio = Math.exp(0.5 * config.threshold);
     this.desk = new AlertDesk(stream, listener, config.capacity * PER_COMPONENT, config, this.shifts, this.fit, {
       kindOf: (i) => STAT_KINDS[i % PER_COMPONENT],
       componentOf: (i) => (this.ref as OnlineMixture1D).id(Math.floor(i / PER_COMPONENT)),
@@ -205,7 +209,8 @@ export class StreamMonitor implements Monitor {
     for (let j = 0; j < k; j++) rG += ref.responsibility(j);
     const lambda = cfg.locationShiftSds;
     const shiftPenalty = this.shiftPenalty;
-    let maxStat = 0;
+    // Statistics are ratios R = e^S (cusum-bank.ts): track the largest R.
+    let maxRatio = 1;
     let st = 0;
     const cs = this.consts;
     const loc = this.locConsts;
@@ -219,35 +224,36 @@ export class StreamMonitor implements Monitor {
       // alert is active): the statistic still uses only what was known before the event.
       let lz = lambda * (y - loc[2 * j]) * loc[2 * j + 1];
       if (r < 1e-12 && rG > 1 - 1e-9 && lz < 13 && lz > -13) {
-        // The event is plainly another component's: every ratio is its constant for "not this one" (within 1e-9),
-        // and the location ratio is 1 (r·e^|λz| < 1e-6). Most events take this path in well-separated mixtures.
-        st = this.step(base + W_UP, cs[c + C_UP_LB], offset, ts);
-        if (st > maxStat) maxStat = st;
-        st = this.step(base + W_DOWN, cs[c + C_DN_LB], offset, ts);
-        if (st > maxStat) maxStat = st;
-        st = this.step(base + VANISH, cs[c + C_VA_LB], offset, ts);
-        if (st > maxStat) maxStat = st;
-        st = this.step(base + LOC_UP, 0, offset, ts);
-        if (st > maxStat) maxStat = st;
-        st = this.step(base + LOC_DOWN, 0, offset, ts);
-        if (st > maxStat) maxStat = st;
+        // The event is plainly another component's: every weight ratio is its constant b for "not this one"
+        // (within 1e-9), and the location ratio is 1 (r·e^|λz| < 1e-6). Most events take this path in
+        // well-separated mixtures.
+        st = this.step(base + W_UP, cs[c + C_UP_B], offset, ts);
+        if (st > maxRatio) maxRatio = st;
+        st = this.step(base + W_DOWN, cs[c + C_DN_B], offset, ts);
+        if (st > maxRatio) maxRatio = st;
+        st = this.step(base + VANISH, cs[c + C_VA_B], offset, ts);
+        if (st > maxRatio) maxRatio = st;
+        st = this.step(base + LOC_UP, 1, offset, ts);
+        if (st > maxRatio) maxRatio = st;
+        st = this.step(base + LOC_DOWN, 1, offset, ts);
+        if (st > maxRatio) maxRatio = st;
         continue;
       }
       const rOther = rG - r;
-      st = this.step(base + W_UP, Math.log(1 + r * (cs[c + C_UP_A] - 1) + rOther * (cs[c + C_UP_B] - 1)), offset, ts);
-      if (st > maxStat) maxStat = st;
-      st = this.step(base + W_DOWN, Math.log(1 + r * (cs[c + C_DN_A] - 1) + rOther * (cs[c + C_DN_B] - 1)), offset, ts);
-      if (st > maxStat) maxStat = st;
-      st = this.step(base + VANISH, Math.log(1 + r * (cs[c + C_VA_A] - 1) + rOther * (cs[c + C_VA_B] - 1)), offset, ts);
-      if (st > maxStat) maxStat = st;
+      st = this.step(base + W_UP, 1 + r * (cs[c + C_UP_A] - 1) + rOther * (cs[c + C_UP_B] - 1), offset, ts);
+      if (st > maxRatio) maxRatio = st;
+      st = this.step(base + W_DOWN, 1 + r * (cs[c + C_DN_A] - 1) + rOther * (cs[c + C_DN_B] - 1), offset, ts);
+      if (st > maxRatio) maxRatio = st;
+      st = this.step(base + VANISH, 1 + r * (cs[c + C_VA_A] - 1) + rOther * (cs[c + C_VA_B] - 1), offset, ts);
+      if (st > maxRatio) maxRatio = st;
       // Location: f'(y)/f(y) = exp(±λz - λ²/2) for a shift of ±λ sd; clamp so far events cannot overflow.
       if (lz > 50) lz = 50;
       else if (lz < -50) lz = -50;
       const e = Math.exp(lz);
-      st = this.step(base + LOC_UP, Math.log(1 + r * (e * shiftPenalty - 1)), offset, ts);
-      if (st > maxStat) maxStat = st;
-      st = this.step(base + LOC_DOWN, Math.log(1 + r * (shiftPenalty / e - 1)), offset, ts);
-      if (st > maxStat) maxStat = st;
+      st = this.step(base + LOC_UP, 1 + r * (e * shiftPenalty - 1), offset, ts);
+      if (st > maxRatio) maxRatio = st;
+      st = this.step(base + LOC_DOWN, 1 + r * (shiftPenalty / e - 1), offset, ts);
+      if (st > maxRatio) maxRatio = st;
     }
     // Fit: standardised surprise, clipped so one wild event cannot decide alone.
     const fitStat = this.fit.step(0, this.surprise.standardized(surprise, FIT_CLIP) - FIT_SLACK, offset, ts);
@@ -257,12 +263,12 @@ export class StreamMonitor implements Monitor {
     if (bin >= 0) this.onNovelty(bin, ts, offset);
 
     if (this.desk.pendingCount > 0) this.desk.confirm(this.accepted, ts, offset);
-    return maxStat < 0.5 * h && fitStat < 0.5 * cfg.fitThreshold && this.desk.book.size === 0;
+    return maxRatio < this.halfRatio && fitStat < 0.5 * cfg.fitThreshold && this.desk.book.size === 0;
   }
 
-  /** One CUSUM step; the desk opens an alert on a crossing, resolves or caps one that is active. */
-  private step(i: number, llr: number, offset: number, ts: number): number {
-    const s = this.shifts.step(i, llr, offset, ts);
+  /** One CUSUM step with the event's likelihood ratio; the desk opens an alert on a crossing, resolves or caps one that is active. */
+  private step(i: number, ratio: number, offset: number, ts: number): number {
+    const s = this.shifts.step(i, ratio, offset, ts);
     // Small enough to inline: the rest only matters near the threshold or for a statistic an alert owns.
     if (this.desk.needsAttention(i, s)) this.desk.afterStep(i, s, this.accepted, ts, offset);
     return s;
@@ -478,7 +484,7 @@ export class StreamMonitor implements Monitor {
 
   exportState(): MonitorState {
     return {
-      version: 1,
+      version: MONITOR_STATE_VERSION,
       stream: this.stream,
       phase: this.phase,
       scale: this.scaleName,
@@ -501,7 +507,7 @@ export class StreamMonitor implements Monitor {
   }
 
   static importState(s: MonitorState, config: MonitorConfig, listener: TransitionListener): StreamMonitor {
-    if (s.version !== 1) throw new Error(`monitor state version ${s.version} is not supported`);
+    const { shifts, consts } = currentShiftFields(s, 'monitor');
     const m = new StreamMonitor(s.stream, { ...config, known: null }, listener);
     (m as { config: MonitorConfig }).config = config;
     m.phase = s.phase;
@@ -514,10 +520,10 @@ export class StreamMonitor implements Monitor {
     } else m.boot = null;
     m.ref = s.ref === null ? null : OnlineMixture1D.importState(s.ref);
     m.cur = s.cur === null ? null : OnlineMixture1D.importState(s.cur);
-    m.shifts.importState(s.shifts);
+    m.shifts.importState(shifts);
     m.fit.importState(s.fit);
     m.grid.importState(s.grid);
-    m.consts.set(s.consts);
+    m.consts.set(consts);
     m.recentShare.set(s.recentShare);
     m.locConsts.set(s.locConsts);
     m.surprise.importFields(s);
@@ -530,19 +536,16 @@ export class StreamMonitor implements Monitor {
   }
 }
 
-export interface MonitorState extends SurpriseFields {
-  version: 1;
+export interface MonitorState extends SurpriseFields, ShiftFields {
   stream: string;
   phase: MonitorPhase;
   scale: ScaleName;
   boot: number[] | null;
   ref: ReturnType<OnlineMixture1D['exportState']> | null;
   cur: ReturnType<OnlineMixture1D['exportState']> | null;
-  shifts: number[];
   owned: number[];
   fit: number[];
   grid: ReturnType<NoveltyGrid['exportState']>;
-  consts: number[];
   recentShare: number[];
   locConsts: number[];
   accepted: number;

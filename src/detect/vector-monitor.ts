@@ -39,8 +39,9 @@ import type { ActiveAlert, TransitionListener } from './alert-book.js';
 import { AlertDesk } from './alert-desk.js';
 import { fmt, pct } from './evidence-text.js';
 import { SurpriseTracker, type SurpriseFields } from './surprise.js';
-import { C_DN_A, C_DN_B, C_DN_LB, C_UP_A, C_UP_B, C_UP_LB, C_VA_A, C_VA_B, C_VA_LB, WEIGHT_CONSTS, setWeightAlternatives } from './weight-alternatives.js';
-import { CusumBank } from './cusum-bank.js';
+import { C_DN_A, C_DN_B, C_UP_A, C_UP_B, C_VA_A, C_VA_B, WEIGHT_CONSTS, setWeightAlternatives } from './weight-alternatives.js';
+import { RatioCusums, ScoreCusums } from './cusum-bank.js';
+import { MONITOR_STATE_VERSION, currentShiftFields, type ShiftFields } from './state-version.js';
 import type { MonitorConfig } from './monitor-config.js';
 import { bhattacharyya, mahalanobis2, withComponent, withMerged, withSettings, withoutComponent } from './vector-model-edit.js';
 import { VectorNovelty, type VectorCandidate, type VectorNoveltyState } from './vector-novelty.js';
@@ -84,10 +85,12 @@ export class VectorStreamMonitor {
   private readonly refIds: Int32Array;
   private readonly curIds: Int32Array;
   private nextId = 1;
-  private readonly shifts: CusumBank;
-  private readonly fit = new CusumBank(1);
+  private readonly shifts: RatioCusums;
+  private readonly fit = new ScoreCusums(1);
   private novelty: VectorNovelty | null = null;
   private readonly consts: Float64Array;
+  /** e^(h/2): an event is quiet while every shift statistic's ratio is below it. */
+  private readonly halfRatio: number = 0;
   /** Per component and axis: √C_ii and the location penalty λ²·C_ii·(C⁻¹)_ii/2 (working frame). */
   private readonly locSd: Float64Array;
   private readonly locPen: Float64Array;
@@ -114,8 +117,9 @@ export class VectorStreamMonitor {
     this.config = config;
     this.refIds = new Int32Array(config.capacity);
     this.curIds = new Int32Array(config.capacity);
-    this.shifts = new CusumBank(config.capacity * PER_COMPONENT);
+    this.shifts = new RatioCusums(config.capacity * PER_COMPONENT);
     this.consts = new Float64Array(config.capacity * WEIGHT_CONSTS);
+    this.halfRatio = Math.exp(0.5 * config.threshold);
     this.locSd = new Float64Array(config.capacity * MV_MAX_DIM);
     this.locPen = new Float64Array(config.capacity * MV_MAX_DIM);
     this.desk = new AlertDesk(stream, listener, config.capacity * PER_COMPONENT, config, this.shifts, this.fit, {
@@ -229,7 +233,8 @@ export class VectorStreamMonitor {
     const d = this.d;
     const cs = this.consts;
     const resp = this.resp;
-    let maxStat = 0;
+    // Statistics are ratios R = e^S (cusum-bank.ts): track the largest R.
+    let maxStat = 1;
     ref.mixture.toFrame(this.xv, this.z);
     for (let j = 0; j < k; j++) {
       const r = rG * resp[j];
@@ -245,18 +250,18 @@ export class VectorStreamMonitor {
         // (within 1e-9) and each location ratio is 1 (r·e^|λz| < 1e-6). Most events take this path.
         maxStat = Math.max(
           maxStat,
-          this.step(base + W_UP, cs[c + C_UP_LB], offset, ts),
-          this.step(base + W_DOWN, cs[c + C_DN_LB], offset, ts),
-          this.step(base + VANISH, cs[c + C_VA_LB], offset, ts),
+          this.step(base + W_UP, cs[c + C_UP_B], offset, ts),
+          this.step(base + W_DOWN, cs[c + C_DN_B], offset, ts),
+          this.step(base + VANISH, cs[c + C_VA_B], offset, ts),
         );
-        for (let i = 0; i < 2 * d; i++) maxStat = Math.max(maxStat, this.step(base + LOC + i, 0, offset, ts));
+        for (let i = 0; i < 2 * d; i++) maxStat = Math.max(maxStat, this.step(base + LOC + i, 1, offset, ts));
         continue;
       }
       maxStat = Math.max(
         maxStat,
-        this.step(base + W_UP, Math.log(1 + r * (cs[c + C_UP_A] - 1) + rOther * (cs[c + C_UP_B] - 1)), offset, ts),
-        this.step(base + W_DOWN, Math.log(1 + r * (cs[c + C_DN_A] - 1) + rOther * (cs[c + C_DN_B] - 1)), offset, ts),
-        this.step(base + VANISH, Math.log(1 + r * (cs[c + C_VA_A] - 1) + rOther * (cs[c + C_VA_B] - 1)), offset, ts),
+        this.step(base + W_UP, 1 + r * (cs[c + C_UP_A] - 1) + rOther * (cs[c + C_UP_B] - 1), offset, ts),
+        this.step(base + W_DOWN, 1 + r * (cs[c + C_DN_A] - 1) + rOther * (cs[c + C_DN_B] - 1), offset, ts),
+        this.step(base + VANISH, 1 + r * (cs[c + C_VA_A] - 1) + rOther * (cs[c + C_VA_B] - 1), offset, ts),
       );
       for (let i = 0; i < d; i++) {
         let lz = u[i];
@@ -265,8 +270,8 @@ export class VectorStreamMonitor {
         const pen = this.locPen[j * MV_MAX_DIM + i];
         maxStat = Math.max(
           maxStat,
-          this.step(base + LOC + 2 * i, Math.log(1 + r * (Math.exp(lz - pen) - 1)), offset, ts),
-          this.step(base + LOC + 2 * i + 1, Math.log(1 + r * (Math.exp(-lz - pen) - 1)), offset, ts),
+          this.step(base + LOC + 2 * i, 1 + r * (Math.exp(lz - pen) - 1), offset, ts),
+          this.step(base + LOC + 2 * i + 1, 1 + r * (Math.exp(-lz - pen) - 1), offset, ts),
         );
       }
     }
@@ -278,7 +283,7 @@ export class VectorStreamMonitor {
     if (cand !== null && cand.statistic >= h) this.onNovelty(cand, ts);
 
     if (this.desk.pendingCount > 0) this.desk.confirm(this.accepted, ts, offset);
-    return maxStat < 0.5 * h && fitStat < 0.5 * cfg.fitThreshold && this.desk.book.size === 0;
+    return maxStat < this.halfRatio && fitStat < 0.5 * cfg.fitThreshold && this.desk.book.size === 0;
   }
 
   /**
@@ -289,7 +294,7 @@ export class VectorStreamMonitor {
    * With δ = ±λ σ_i e_i (λ sd of axis i, σ_i² = Σ_ii):
    *   ln f'_k/f_k = ±λ σ_i (Σ⁻¹(x−μ))_i − ½ λ² σ_i² (Σ⁻¹)_ii.
    * The mixture changes in component k only, so p'(x)/p(x) = 1 + r_k (f'_k/f_k − 1) with r_k the
-   * responsibility of k under the reference (background included): the CUSUM adds its log. The expected
+   * responsibility of k under the reference (background included): the CUSUM takes this ratio. The expected
    * llr under no change is ≤ 0; KL per event of component k is ½λ²σ_i²(Σ⁻¹)_ii ≥ ½λ² (correlation raises it).
    * In the frame z = D⁻¹(x − c) (D = diag(scale)), Σ = D C D, so Σ⁻¹(x−μ) = D⁻¹C⁻¹(z−m) and
    * σ_i (Σ⁻¹(x−μ))_i = √C_ii (C⁻¹(z−m))_i, σ_i²(Σ⁻¹)_ii = C_ii (C⁻¹)_ii: the scale cancels. C⁻¹(z−m) costs
@@ -317,9 +322,9 @@ export class VectorStreamMonitor {
     for (let i = 0; i < d; i++) u[i] = lambda * u[i] * this.locSd[j * MV_MAX_DIM + i];
   }
 
-  /** One CUSUM step; the desk opens an alert on a crossing, resolves or caps one that is active. */
-  private step(i: number, llr: number, offset: number, ts: number): number {
-    const s = this.shifts.step(i, llr, offset, ts);
+  /** One CUSUM step with the event's likelihood ratio; the desk opens an alert on a crossing, resolves or caps one that is active. */
+  private step(i: number, ratio: number, offset: number, ts: number): number {
+    const s = this.shifts.step(i, ratio, offset, ts);
     if (this.desk.needsAttention(i, s)) this.desk.afterStep(i, s, this.accepted, ts, offset);
     return s;
   }
@@ -663,7 +668,7 @@ export class VectorStreamMonitor {
 
   exportState(): VectorMonitorState {
     return {
-      version: 1,
+      version: MONITOR_STATE_VERSION,
       stream: this.stream,
       phase: this.phase,
       d: this.d,
@@ -692,7 +697,7 @@ export class VectorStreamMonitor {
   }
 
   static importState(s: VectorMonitorState, config: MonitorConfig, listener: TransitionListener): VectorStreamMonitor {
-    if (s.version !== 1) throw new Error(`vector monitor state version ${s.version} is not supported`);
+    const { shifts, consts } = currentShiftFields(s, 'vector monitor');
     const m = new VectorStreamMonitor(s.stream, config, listener);
     m.phase = s.phase;
     if (s.d > 0) m.setDimension(s.d);
@@ -705,10 +710,10 @@ export class VectorStreamMonitor {
     m.refIds.set(s.refIds);
     m.curIds.set(s.curIds);
     m.nextId = s.nextId;
-    m.shifts.importState(s.shifts);
+    m.shifts.importState(shifts);
     m.fit.importState(s.fit);
     if (s.novelty !== null && m.novelty !== null) m.novelty.importState(s.novelty);
-    m.consts.set(s.consts);
+    m.consts.set(consts);
     m.locSd.set(s.locSd);
     m.locPen.set(s.locPen);
     m.unit.set(s.unit);
@@ -724,8 +729,7 @@ export class VectorStreamMonitor {
   }
 }
 
-export interface VectorMonitorState extends SurpriseFields {
-  version: 1;
+export interface VectorMonitorState extends SurpriseFields, ShiftFields {
   stream: string;
   phase: VectorMonitorPhase;
   d: number;
@@ -735,11 +739,9 @@ export interface VectorMonitorState extends SurpriseFields {
   refIds: number[];
   curIds: number[];
   nextId: number;
-  shifts: number[];
   owned: number[];
   fit: number[];
   novelty: VectorNoveltyState | null;
-  consts: number[];
   locSd: number[];
   locPen: number[];
   unit: number[];

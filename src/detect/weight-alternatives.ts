@@ -12,12 +12,8 @@ export const C_DN_A = 2;
 export const C_DN_B = 3;
 export const C_VA_A = 4;
 export const C_VA_B = 5;
-/** ln b of each alternative: the ratio for an event that is plainly another component's. */
-export const C_UP_LB = 6;
-export const C_DN_LB = 7;
-export const C_VA_LB = 8;
-/** Numbers per component. */
-export const WEIGHT_CONSTS = 9;
+/** Numbers per component. b of each alternative is also its ratio for an event that is plainly another component's. */
+export const WEIGHT_CONSTS = 6;
 
 /** Fill out[at .. at+WEIGHT_CONSTS) for a component of reference weight `weight`. */
 export function setWeightAlternatives(out: Float64Array, at: number, weight: number, cfg: MonitorConfig): void {
@@ -32,7 +28,4 @@ export function setWeightAlternatives(out: Float64Array, at: number, weight: num
   out[at + C_DN_B] = (1 - down) / (1 - w);
   out[at + C_VA_A] = van / w;
   out[at + C_VA_B] = (1 - van) / (1 - w);
-  out[at + C_UP_LB] = Math.log(out[at + C_UP_B]);
-  out[at + C_DN_LB] = Math.log(out[at + C_DN_B]);
-  out[at + C_VA_LB] = Math.log(out[at + C_VA_B]);
 }

@@ -1,7 +1,7 @@
 import { describe, expect, it } from 'vitest';
 import type { AlertTransition } from '../../src/detect/alert.js';
 import { monitorConfig, validateMonitorConfig } from '../../src/detect/monitor-config.js';
-import { StreamMonitor } from '../../src/detect/stream-monitor.js';
+import { StreamMonitor, type MonitorState } from '../../src/detect/stream-monitor.js';
 import { simulate } from '../../src/simulate/generator.js';
 import { buildScenario } from '../../src/simulate/suite.js';
 
@@ -131,5 +131,32 @@ describe('determinism', () => {
     expect(JSON.stringify(resumed.exportState())).toBe(JSON.stringify(straight.exportState()));
     expect(b).toEqual(a);
     expect(a.length).toBeGreaterThan(0);
+  });
+
+  it('a state saved by version 1 (statistics as S, nine constants per component) resumes to the same alerts', () => {
+    const sim = simulate(buildScenario('latency-weight-shift', { events: 16_000 }), 3);
+    const records = [...sim.records()].filter((r) => r.bad === null);
+    const cfg = monitorConfig();
+    const a: AlertTransition[] = [];
+    const straight = new StreamMonitor('s', cfg, (t) => a.push(t));
+    const b: AlertTransition[] = [];
+    let resumed = new StreamMonitor('s', cfg, (t) => b.push(t));
+    const cut = records.findIndex((r) => r.offset >= sim.truth().changes[0].offset + 100);
+    records.forEach((r, i) => {
+      straight.observe(r.value, r.ts, r.offset);
+      resumed.observe(r.value, r.ts, r.offset);
+      if (i !== cut) return;
+      const now: MonitorState = JSON.parse(JSON.stringify(resumed.exportState()));
+      expect(now.version).toBe(2);
+      // Version 1 saved S = ln R, and after each component's six weight constants the logs of the three b's.
+      const consts: number[] = [];
+      for (let j = 0; j < now.consts.length; j += 6) consts.push(...now.consts.slice(j, j + 6), Math.log(now.consts[j + 1]), Math.log(now.consts[j + 3]), Math.log(now.consts[j + 5]));
+      const old = { ...now, version: 1 as const, shifts: now.shifts.map((x, n) => (n % 3 === 0 ? Math.log(x) : x)), consts };
+      resumed = StreamMonitor.importState(old, cfg, (t) => b.push(t));
+    });
+    expect(cut).toBeGreaterThan(0);
+    expect(a.some((t) => t.state === 'firing' && t.kind === 'weight_shift')).toBe(true);
+    expect(b.map((t) => [t.kind, t.state, t.offset])).toEqual(a.map((t) => [t.kind, t.state, t.offset]));
+    expect(() => StreamMonitor.importState({ ...straight.exportState(), version: 7 as 2 }, cfg, () => {})).toThrow(/version 7 is not supported/);
   });
 });
