@@ -5,7 +5,8 @@
  * retried and then counted as failed.
  */
 import { randomBytes } from 'node:crypto';
-import { Kafka, logLevel, type KafkaMessage } from 'kafkajs';
+import type { KafkaMessage } from 'kafkajs';
+import { Kafka, logLevel } from '../src/ingest/kafkajs.js';
 import { describe, expect, it } from 'vitest';
 import type { AlertTransition } from '../src/detect/alert.js';
 import { KafkaSink } from '../src/alerting/kafka-sink.js';

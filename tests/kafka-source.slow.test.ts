@@ -4,10 +4,10 @@
  * lag, pattern subscriptions, and dead-letter records with their headers.
  */
 import { randomBytes } from 'node:crypto';
-import { Kafka, logLevel } from 'kafkajs';
 import { describe, expect, it } from 'vitest';
 import { DeadLetterProducer, DLQ_HEADERS } from '../src/ingest/dead-letter.js';
 import { KafkaSource } from '../src/ingest/kafka-source.js';
+import { Kafka, logLevel, recordDecoderOwner } from '../src/ingest/kafkajs.js';
 import { copyRecords, type RawRecord, type SourceHandlers } from '../src/ingest/source.js';
 import { useSharedBroker } from './support/kafka-broker.js';
 
@@ -111,6 +111,47 @@ describe('KafkaSource', () => {
     } finally {
       await s2.stop();
     }
+  });
+
+  it('reads records with our record decoder exactly as they were produced: keys, values, timestamps, headers, offsets', async (ctx) => {
+    // kafkajs was first loaded through src/ingest/kafkajs.ts in this process, so kafkajs decodes with ours.
+    expect(recordDecoderOwner).toBe('modewatch');
+    const { brokers } = broker.get(ctx);
+    const topic = `decoded-${uniq()}`;
+    const kafka = new Kafka({ clientId: 'producer', brokers, logLevel: logLevel.NOTHING });
+    const admin = kafka.admin();
+    await admin.connect();
+    await admin.createTopics({ topics: [{ topic, numPartitions: 1 }], waitForLeaders: true });
+    await admin.disconnect();
+    const t0 = Date.UTC(2026, 0, 1);
+    const sent = Array.from({ length: 300 }, (_, i) => ({
+      key: i % 10 === 0 ? null : `svc-${i % 7}`,
+      value: i % 25 === 3 ? null : i % 25 === 4 ? '' : JSON.stringify({ n: i, v: 'é' }),
+      // Out of order on purpose: a batch's timestamp deltas can be negative.
+      timestamp: String(t0 + (i % 3 === 0 ? -i : i) * 1000),
+      headers: i % 4 === 1 ? { trace: `t${i}`, region: 'west' } : undefined,
+    }));
+    const p = kafka.producer();
+    await p.connect();
+    for (let i = 0; i < sent.length; i += 100) await p.send({ topic, messages: sent.slice(i, i + 100) });
+    await p.disconnect();
+
+    const r = recorder();
+    const s = new KafkaSource({ brokers, clientId: 'src', groupId: `g-${uniq()}`, topics: [topic], fromBeginning: true });
+    await s.start(r.handlers);
+    try {
+      await waitFor('300 records', () => r.records.length >= 300);
+    } finally {
+      await s.stop();
+    }
+    expect(r.records.map((x) => x.offset)).toEqual(range(0, 300));
+    r.records.forEach((x, i) => {
+      const m = sent[i];
+      expect(x.key === null ? null : x.key.toString()).toBe(m.key);
+      expect(x.value === null ? null : x.value.toString()).toBe(m.value);
+      expect(x.timestamp).toBe(Number(m.timestamp));
+      expect(Object.fromEntries(Object.entries(x.headers).map(([k, v]) => [k, String(v)]))).toEqual(m.headers ?? {});
+    });
   });
 
   it('seeks to the offsets onAssigned returns and reports lag until it has caught up', async (ctx) => {

@@ -4,7 +4,9 @@
  * them) that must not be seen, neither at once nor after later saves.
  */
 import { randomBytes } from 'node:crypto';
-import { ConfigResourceTypes, Kafka, logLevel } from 'kafkajs';
+import { Kafka, logLevel } from '../src/ingest/kafkajs.js';
+// After the line above, so that kafkajs is first loaded with modewatch's record decoder.
+import { ConfigResourceTypes } from 'kafkajs';
 import { describe, expect, it } from 'vitest';
 import { KafkaCheckpointStore, streamKey } from '../src/state/kafka-store.js';
 import type { Checkpoint } from '../src/state/store.js';

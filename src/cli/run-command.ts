@@ -3,7 +3,7 @@
  * decoders, stream registry, checkpoint store, alert sinks, dead letters, metrics and HTTP, and
  * turns SIGTERM/SIGINT into a clean stop (finish the batch, checkpoint, commit, exit 0).
  */
-import { Kafka } from 'kafkajs';
+import type { Kafka } from 'kafkajs';
 import pino from 'pino';
 import type { Argv, CommandModule } from 'yargs';
 import { AlertmanagerSink } from '../alerting/alertmanager-sink.js';

@@ -3,7 +3,8 @@
  * connection options (brokers, TLS, SASL) and kafkajs's log lines routed to the caller's logger.
  * Secrets (the SASL password) are passed to kafkajs and never logged: describeKafka() is what logs may show.
  */
-import { Kafka, logLevel, type LogEntry, type SASLOptions } from 'kafkajs';
+import type { LogEntry, SASLOptions } from 'kafkajs';
+import { Kafka, logLevel } from './kafkajs.js';
 
 /** A pino logger fits this shape; so does the silent default. */
 export interface KafkaLogger {

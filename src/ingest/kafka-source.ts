@@ -29,6 +29,7 @@ import {
   type KafkaConnectionOptions,
   type KafkaLogger,
 } from './kafka-client.js';
+import { recordDecoderOwner } from './kafkajs.js';
 
 export interface KafkaSourceOptions extends KafkaConnectionOptions {
   groupId: string;
@@ -111,7 +112,8 @@ export class KafkaSource implements Source {
     if (this.started) throw new Error('KafkaSource.start called twice');
     this.started = true;
     this.handlers = handlers;
-    this.log.info({ kafka: describeKafka(this.opts), groupId: this.opts.groupId }, 'kafka source starting');
+    // recordDecoder: 'modewatch' when kafkajs decodes records with ours (kafkajs.ts), 'kafkajs' when with its own.
+    this.log.info({ kafka: describeKafka(this.opts), groupId: this.opts.groupId, recordDecoder: recordDecoderOwner }, 'kafka source starting');
     await this.admin.connect();
     await this.ensureTopics();
 
