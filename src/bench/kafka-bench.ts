@@ -3,17 +3,20 @@
  *
  * 1. Starts a broker (startBroker: MODEWATCH_KAFKA_BROKERS, Docker, or the Kafka jars), produces 1 million JSON
  *    events {"ts","value"} keyed by stream (10 invented latency streams) to a one-partition topic, then reads the
- *    topic from the start, in one run, with (a) a bare kafkajs consumer whose eachBatch does nothing and (b) the
- *    daemon pipeline (startDaemon: KafkaSource, decoder, StreamRegistry, checkpoints to a directory at the default
- *    cadence, no alert sinks). Each has its own group; the clock starts once the group is joined and stops when
- *    all records were consumed (a) or accepted into the models (b).
+ *    topic from the start, in one run, with (a) a bare kafkajs consumer whose eachBatch does nothing, kafkajs as
+ *    published, (b) the same with the daemon's record decoder in kafkajs (src/ingest/kafkajs.ts), both on threads
+ *    of their own (bare-consumer-thread.ts), and (c) the daemon pipeline (startDaemon: KafkaSource, decoder,
+ *    StreamRegistry, checkpoints to a directory at the default cadence, no alert sinks). Each has its own group;
+ *    the clock starts once the group is joined and stops when all records were consumed (a, b) or accepted into
+ *    the models (c). The target compares (c) with (a); the ratio of (c) to (b) says what the daemon costs beyond
+ *    reading, and the ratio of (b) to (a) what the record decoder saves.
  * 2. Memory per 1-D stream: one monitor run to the armed state on simulated data, snapshotted, restored as N
  *    renamed copies into a StreamRegistry built as the daemon builds it (256 recent values per stream); growth / N
  *    of rss, heapUsed, and heapUsed + arrayBuffers (typed arrays live outside the JS heap) after a full GC,
  *    for N = 10 000 and 100 000. rss also keeps what the allocator has not returned to the system. And the serialized model state per stream:
  *    the JSON of the reference and current OnlineMixture1D states only.
  *
- * The two consumers are measured in alternating rounds (BENCH_KAFKA_ROUNDS, default 5: bare, daemon, bare, ...),
+ * The consumers are measured in alternating rounds (BENCH_KAFKA_ROUNDS, default 5: a, b, c, a, b, c, ...),
  * each round with its own group, so that both see the same machine load. The ratio reported is the median of the
  * rounds' paired ratios (a shared machine's load changes from one round to the next, and a pair shares it); the
  * ratio of the median rates is printed beside it, and every round too.
@@ -28,18 +31,20 @@ import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { pathToFileURL } from 'node:url';
 import { setFlagsFromString } from 'node:v8';
+import { Worker } from 'node:worker_threads';
 import { runInNewContext } from 'node:vm';
-import { Kafka, logLevel } from 'kafkajs';
 import pino from 'pino';
 import { loadOrExplain, startDaemon } from '../cli/run-command.js';
 import { defaultResolver } from '../cli/replay.js';
 import { startBroker } from '../devtools/kafka-broker.js';
+import { Kafka, logLevel } from '../ingest/kafkajs.js';
 import { EventSlot } from '../ingest/event.js';
 import { Random } from '../math/random.js';
 import { simulate } from '../simulate/generator.js';
 import { buildScenario } from '../simulate/suite.js';
 import type { MonitorState } from '../detect/stream-monitor.js';
 import { StreamRegistry, type RegistrySnapshot } from '../streams/stream-registry.js';
+import type { BareConsumerJob, BareConsumerResult } from './bare-consumer-thread.js';
 
 interface Figure {
   bench: string;
@@ -98,38 +103,20 @@ async function produceEvents(brokers: string[], topic: string, n: number): Promi
   return true;
 }
 
-async function bareConsumer(brokers: string[], topic: string, n: number): Promise<{ rate: number; cpuPerEvent: number }> {
-  const kafka = new Kafka({ clientId: 'modewatch-bench-bare', brokers, logLevel: logLevel.NOTHING });
-  const consumer = kafka.consumer({ groupId: `bench-bare-${Date.now()}`, maxWaitTimeInMs: 1000 });
-  let seen = 0;
-  let t0 = 0;
-  let t1 = 0;
-  let done!: () => void;
-  const finished = new Promise<void>((res) => (done = res));
-  let c0: NodeJS.CpuUsage | null = null;
-  let c1: NodeJS.CpuUsage | null = null;
-  consumer.on(consumer.events.GROUP_JOIN, () => {
-    if (t0 === 0) {
-      t0 = performance.now();
-      c0 = process.cpuUsage();
-    }
+/** One bare consumer run on its own thread (bare-consumer-thread.ts), with kafkajs's record decoder or ours. */
+function bareConsumer(brokers: string[], topic: string, n: number, decoder: BareConsumerJob['decoder']): Promise<BareConsumerResult> {
+  const job: BareConsumerJob = { brokers, topic, n, decoder };
+  const worker = new Worker(new URL('./bare-consumer-thread.js', import.meta.url), { workerData: job });
+  return new Promise((resolve, reject) => {
+    let result: BareConsumerResult | null = null;
+    worker.once('message', (m: BareConsumerResult) => (result = m));
+    worker.once('error', reject);
+    worker.once('exit', (code) => {
+      if (result === null) reject(new Error(`the bare consumer thread exited with code ${code} and no result`));
+      else if (result.decoder !== decoder) reject(new Error(`the bare consumer asked for ${decoder}'s record decoder ran with ${result.decoder}'s`));
+      else resolve(result);
+    });
   });
-  await consumer.connect();
-  await consumer.subscribe({ topics: [topic], fromBeginning: true });
-  await consumer.run({
-    eachBatch: async ({ batch }) => {
-      seen += batch.messages.length;
-      if (seen >= n && t1 === 0) {
-        t1 = performance.now();
-        c1 = process.cpuUsage(c0 ?? undefined);
-        done();
-      }
-    },
-  });
-  await finished;
-  await consumer.disconnect();
-  const cpu = c1 as NodeJS.CpuUsage | null;
-  return { rate: n / ((t1 - t0) / 1000), cpuPerEvent: cpu === null ? NaN : (cpu.user + cpu.system) / n };
 }
 
 async function daemonPipeline(brokers: string[], topic: string, n: number, dir: string): Promise<{ rate: number; checkpoints: string; busy: number; cpuPerEvent: number }> {
@@ -246,25 +233,36 @@ async function main(): Promise<void> {
     if (await produceEvents(broker.brokers, topic, n)) note(`produced ${n} events to ${topic} in ${((performance.now() - tp) / 1000).toFixed(1)} s`);
     else note(`reusing the ${n} events of ${topic}`);
     const bare: number[] = [];
+    const bareOurs: number[] = [];
     const daemon: number[] = [];
     const ratios: number[] = [];
+    const sameDecoderRatios: number[] = [];
     let checkpoints = '';
     for (let r = 1; r <= rounds; r++) {
-      const b = await bareConsumer(broker.brokers, topic, n);
+      const b = await bareConsumer(broker.brokers, topic, n, 'kafkajs');
       bare.push(b.rate);
-      emit({ bench: 'kafka/bare_consumer_round', value: Math.round(b.rate), unit: 'events/s', round: r, process_cpu_us_per_event: round3(b.cpuPerEvent) });
+      emit({ bench: 'kafka/bare_consumer_round', value: Math.round(b.rate), unit: 'events/s', round: r, record_decoder: b.decoder, process_cpu_us_per_event: round3(b.cpuPerEvent) });
+      const bo = await bareConsumer(broker.brokers, topic, n, 'modewatch');
+      bareOurs.push(bo.rate);
+      emit({ bench: 'kafka/bare_consumer_our_decoder_round', value: Math.round(bo.rate), unit: 'events/s', round: r, record_decoder: bo.decoder, process_cpu_us_per_event: round3(bo.cpuPerEvent) });
       const d = await daemonPipeline(broker.brokers, topic, n, join(dir, `round-${r}`));
       daemon.push(d.rate);
-      ratios.push(d.rate / bare[r - 1]);
+      ratios.push(d.rate / b.rate);
+      sameDecoderRatios.push(d.rate / bo.rate);
       checkpoints = d.checkpoints;
-      emit({ bench: 'kafka/daemon_round', value: Math.round(d.rate), unit: 'events/s', round: r, ratio: round3(d.rate / bare[r - 1]), modelling_busy_fraction: round3(d.busy), process_cpu_us_per_event: round3(d.cpuPerEvent) });
+      emit({ bench: 'kafka/daemon_round', value: Math.round(d.rate), unit: 'events/s', round: r, ratio: round3(d.rate / b.rate), ratio_same_decoder: round3(d.rate / bo.rate), modelling_busy_fraction: round3(d.busy), process_cpu_us_per_event: round3(d.cpuPerEvent) });
     }
     const mb = median(bare);
+    const mbo = median(bareOurs);
     const md = median(daemon);
-    emit({ bench: 'kafka/bare_consumer', value: Math.round(mb), unit: 'events/s', events: n, rounds, statistic: 'median' });
+    const spread = (xs: number[]) => ({ min: round3(Math.min(...xs)), max: round3(Math.max(...xs)) });
+    emit({ bench: 'kafka/bare_consumer', value: Math.round(mb), unit: 'events/s', events: n, rounds, statistic: 'median', record_decoder: 'kafkajs' });
+    emit({ bench: 'kafka/bare_consumer_our_decoder', value: Math.round(mbo), unit: 'events/s', events: n, rounds, statistic: 'median', record_decoder: 'modewatch' });
     emit({ bench: 'kafka/daemon', value: Math.round(md), unit: 'events/s', events: n, rounds, statistic: 'median', checkpoints });
-    emit({ bench: 'kafka/daemon_to_bare_ratio', value: round3(median(ratios)), unit: 'ratio', target: '>= 0.8', statistic: 'median of the rounds\' paired ratios', min: round3(Math.min(...ratios)), max: round3(Math.max(...ratios)) });
+    emit({ bench: 'kafka/daemon_to_bare_ratio', value: round3(median(ratios)), unit: 'ratio', target: '>= 0.8', statistic: "median of the rounds' paired ratios", against: 'bare kafkajs consumer as published', ...spread(ratios) });
     emit({ bench: 'kafka/daemon_to_bare_ratio_of_medians', value: round3(md / mb), unit: 'ratio' });
+    emit({ bench: 'kafka/daemon_to_bare_same_decoder_ratio', value: round3(median(sameDecoderRatios)), unit: 'ratio', statistic: "median of the rounds' paired ratios", against: "bare kafkajs consumer with the daemon's record decoder", ...spread(sameDecoderRatios) });
+    emit({ bench: 'kafka/record_decoder_speedup_ratio', value: round3(median(bareOurs.map((x, i) => x / bare[i]))), unit: 'ratio', statistic: "median of the rounds' paired ratios", what: 'bare consumer rate with our record decoder over kafkajs\'s own' });
   } finally {
     await broker.stop();
     await rm(dir, { recursive: true, force: true });
