@@ -1,11 +1,20 @@
 import fc from 'fast-check';
 import { describe, expect, it } from 'vitest';
 import { EventSlot } from '../src/ingest/event.js';
+import { FlatJsonScanner } from '../src/ingest/flat-json.js';
 import { makeMessageDecoder, type MessageDecoding } from '../src/ingest/message-decoder.js';
 import type { RawRecord } from '../src/ingest/source.js';
 
 function record(value: string, key: string | null = 'svc-1'): RawRecord {
   return { partition: 't-0', offset: 0, key: key === null ? null : Buffer.from(key), value: Buffer.from(value), timestamp: 1_700_000_000_000, headers: {}, topic: 't' };
+}
+
+/** The same record with its value also given in place, inside a larger array whose neighbouring bytes look like
+ *  JSON (a reader that strays past the range would take them), as the consumer thread's packed batches give it. */
+function recordInPlace(value: string, key: string | null, before: string, after: string): RawRecord {
+  const v = Buffer.from(value);
+  const bytes = Buffer.concat([Buffer.from(before), v, Buffer.from(after)]);
+  return { ...record(value, key), valueBytes: bytes, valueStart: before.length, valueEnd: before.length + v.length };
 }
 
 const configs: MessageDecoding[] = [
@@ -45,8 +54,9 @@ describe('flat JSON fast path of the message decoder', () => {
       const a = new EventSlot();
       const b = new EventSlot();
       fc.assert(
-        fc.property(message, fc.option(fc.constantFrom('svc-1', 'svc-2', ''), { nil: null }), (text, key) => {
-          const ra = fast(record(text, key), a);
+        fc.property(message, fc.option(fc.constantFrom('svc-1', 'svc-2', ''), { nil: null }), fc.constantFrom('buffer', 'text', 'in place'), (text, key, given) => {
+          const r = given === 'buffer' ? record(text, key) : given === 'text' ? { ...record(text, key), value: text } : recordInPlace(text, key, '{"value":1,', '5,"ts":2}');
+          const ra = fast(r, a);
           const rb = slow(record(text, key), b);
           expect(ra).toBe(rb);
           if (ra === null) {
@@ -59,6 +69,25 @@ describe('flat JSON fast path of the message decoder', () => {
       );
     });
   }
+
+  it('reads a message inside a larger array without looking past its range', () => {
+    const scanner = new FlatJsonScanner(['value', 'ts', 'svc']);
+    for (const [msg, before, after] of [
+      ['{"value":1}', '99', '5'],
+      ['{"value":-2.5e1 ,"svc":"a-é"}', '{', '"}'],
+      ['{"ts":17,"value":null}', 'x', 'l}'],
+      ['{"value":true}', '', 'e'],
+    ] as const) {
+      const bytes = Buffer.from(before + msg + after);
+      const from = Buffer.byteLength(before);
+      expect(scanner.scan(bytes, from, from + Buffer.byteLength(msg))).toBe(true);
+      const parsed = JSON.parse(msg) as Record<string, unknown>;
+      if (typeof parsed.value === 'number') expect(scanner.num[0]).toBe(parsed.value);
+      if (typeof parsed.svc === 'string') expect(bytes.subarray(scanner.start[2], scanner.end[2]).toString('utf8')).toBe(parsed.svc);
+      // Cut one byte short, it is not a whole object.
+      expect(scanner.scan(bytes, from, from + Buffer.byteLength(msg) - 1)).toBe(false);
+    }
+  });
 
   it('reads the common shape and reuses the stream name of a repeated key', () => {
     const dec = makeMessageDecoder(configs[0]);

@@ -1,5 +1,6 @@
 import { describe, expect, it } from 'vitest';
-import { fromWire, KeyTable, packBatch, PackedRecordBatch, toWire } from '../src/ingest/kafka-thread-protocol.js';
+import { KeyTable } from '../src/ingest/key-table.js';
+import { fromWire, packBatch, PackedRecordBatch, toWire } from '../src/ingest/kafka-thread-protocol.js';
 import { copyRecords, recordBatch, type RawRecord } from '../src/ingest/source.js';
 
 const hex = (v: Buffer | string | null) => (v === null ? null : (typeof v === 'string' ? Buffer.from(v, 'utf8') : Buffer.from(v)).toString('hex'));
@@ -41,6 +42,12 @@ describe('records between the consumer thread and the daemon thread', () => {
     expect(back[2].headers.note).toBe('x');
     expect(Buffer.from(back[2].headers.trace as Buffer).toString()).toBe('abc');
     expect(Object.keys(back[0].headers)).toEqual([]);
+    // Each value is also offered in place, as its bytes in the packed array (what the JSON decoder reads).
+    records.forEach((o, i) => {
+      const r = cursor.record(i);
+      if (o.value === null) expect(r.valueBytes).toBeNull();
+      else expect(hex(Buffer.from((r.valueBytes as Uint8Array).subarray(r.valueStart, r.valueEnd)))).toBe(hex(o.value));
+    });
   });
 
   it('the key table tells apart keys whose hashes collide, and keys that differ only past ASCII', () => {

@@ -12,6 +12,7 @@ import {
   parseCsvHeader,
   parseRfc3339,
   scanJsonNumber,
+  scanJsonNumberBytes,
   StreamInterner,
 } from '../src/ingest/records.js';
 
@@ -106,8 +107,14 @@ describe('NDJSON records', () => {
     for (const t of ['0', '-0', '1.5', '123456789012345678', '0.1', '1e22', '1e23', '9007199254740993', '2.2250738585072014e-308', '5e-324', '1.7976931348623157e308', '123.456e-5']) {
       const v = scanJsonNumber(t, 0, t.length);
       expect(Object.is(v, JSON.parse(t) as number)).toBe(true);
+      // The byte reader, on the number's bytes inside a larger array (digits on both sides it must not read).
+      const bytes = Buffer.from(`7${t}9`);
+      expect(Object.is(scanJsonNumberBytes(bytes, 1, bytes.length - 1), JSON.parse(t) as number)).toBe(true);
     }
-    for (const t of ['-', '1.', '.5', '+1', '1e', 'e5', '-a']) expect(scanJsonNumber(t, 0, t.length)).toBeNaN();
+    for (const t of ['-', '1.', '.5', '+1', '1e', 'e5', '-a']) {
+      expect(scanJsonNumber(t, 0, t.length)).toBeNaN();
+      expect(scanJsonNumberBytes(Buffer.from(t), 0, t.length)).toBeNaN();
+    }
   });
 
   it('agrees with the JSON.parse path on randomized lines (fast-check)', () => {

@@ -3,9 +3,10 @@
  * (kafka-thread-source.ts), and how a batch of records travels between them: packed into a few typed arrays
  * whose buffers are transferred, not copied record by record.
  */
-import { isAscii, isUtf8 } from 'node:buffer';
+import { isAscii } from 'node:buffer';
 import type { KafkaLogger } from './kafka-client.js';
 import type { KafkaSourceOptions } from './kafka-source.js';
+import type { KeyTable } from './key-table.js';
 import type { RawRecord, RecordBatch } from './source.js';
 
 /** Options as they cross to the worker: patterns as source and flags, no logger (logs come back as messages). */
@@ -118,60 +119,23 @@ function place(b: Buffer | null, bytes: Uint8Array, at: number, start: Int32Arra
 const NO_HEADERS: Readonly<Record<string, Buffer | string | undefined>> = Object.freeze({});
 
 /**
- * Keys seen on the daemon's thread, found by a hash of their bytes (FNV-1a, 32 bits) and a byte comparison, so
- * that a key that repeats is neither decoded nor interned again: it comes back as the same string (text when its
- * bytes are valid UTF-8, which decoders treat as they treat the bytes), or as bytes. Bounded: cleared when full.
+ * A packed batch read through the RecordBatch cursor on the daemon's thread: one reused record, no copies. A
+ * value is offered as its bytes in the packed array (RawRecord.valueBytes), which the JSON decoder reads; its text
+ * (`value`) is made only when asked for.
  */
-export class KeyTable {
-  /** A key and, unless it is ASCII text (whose characters are its bytes), a copy of its bytes to compare with. */
-  private readonly byHash = new Map<number, { key: string | Buffer; bytes: Uint8Array | null }>();
-
-  constructor(private readonly capacity = 100_000) {}
-
-  key(bytes: Uint8Array, start: number, end: number): string | Buffer {
-    let h = 0x811c9dc5;
-    for (let j = start; j < end; j++) h = Math.imul(h ^ bytes[j], 0x01000193);
-    const hit = this.byHash.get(h);
-    if (hit !== undefined && sameKey(hit, bytes, start, end)) return hit.key;
-    const own = bytes.slice(start, end);
-    const buf = Buffer.from(own.buffer, own.byteOffset, own.byteLength);
-    const text = buf.toString('utf8');
-    // Decoding replaces bytes that are not UTF-8 with U+FFFD; such a key stays bytes.
-    const key = text.includes('\uFFFD') && !isUtf8(buf) ? buf : text;
-    if (hit === undefined) {
-      if (this.byHash.size >= this.capacity) this.byHash.clear();
-      // Valid UTF-8 decodes to as many characters as bytes only when every byte is ASCII.
-      this.byHash.set(h, { key, bytes: typeof key === 'string' && key.length === own.length ? null : own });
-    }
-    return key;
-  }
-}
-
-function sameKey(e: { key: string | Buffer; bytes: Uint8Array | null }, b: Uint8Array, start: number, end: number): boolean {
-  const n = end - start;
-  if (e.bytes === null) {
-    const t = e.key as string;
-    if (t.length !== n) return false;
-    for (let j = 0; j < n; j++) if (t.charCodeAt(j) !== b[start + j]) return false;
-    return true;
-  }
-  const a = e.bytes;
-  if (a.length !== n) return false;
-  for (let j = 0; j < n; j++) if (a[j] !== b[start + j]) return false;
-  return true;
-}
-
-/** A packed batch read through the RecordBatch cursor on the daemon's thread: one reused record, no copies. */
 export class PackedRecordBatch implements RecordBatch {
   readonly partition: string;
   readonly length: number;
   private readonly rec: RawRecord;
   private readonly buf: Buffer;
-  /** The bytes as Latin-1 text, one character a byte: a value whose bytes are all ASCII is a slice of it (the
-   *  same text UTF-8 decoding gives), made with one decoding call per batch instead of one per record. */
-  private readonly text: string;
+  /** The bytes as Latin-1 text, one character a byte, made at the first `value` asked for: a value whose bytes
+   *  are all ASCII is a slice of it (the same text UTF-8 decoding gives), one decoding call per batch. */
+  private text: string | null = null;
   /** True when every byte of the batch is ASCII (the usual case): then no value needs checking on its own. */
-  private readonly allAscii: boolean;
+  private allAscii = false;
+  /** Where the current record's value lies (-1: none). */
+  private vs = -1;
+  private ve = -1;
   /** Index into b.headers of the next record with headers (records are read in order; rewinds if not). */
   private h = 0;
 
@@ -182,9 +146,37 @@ export class PackedRecordBatch implements RecordBatch {
     this.partition = b.partition;
     this.length = b.n;
     this.buf = Buffer.from(b.bytes.buffer, b.bytes.byteOffset, b.bytes.byteLength);
-    this.text = this.buf.toString('latin1');
-    this.allAscii = isAscii(this.buf);
-    this.rec = { partition: b.partition, offset: 0, key: null, value: null, timestamp: 0, headers: NO_HEADERS as RawRecord['headers'], topic: b.topic };
+    const batch = this;
+    this.rec = {
+      partition: b.partition,
+      offset: 0,
+      key: null,
+      // An own, enumerable getter: a spread copy of the record ({ ...r }) takes the value's text with it.
+      get value() {
+        return batch.valueText();
+      },
+      valueBytes: null,
+      valueStart: 0,
+      valueEnd: 0,
+      timestamp: 0,
+      headers: NO_HEADERS as RawRecord['headers'],
+      topic: b.topic,
+    };
+  }
+
+  private valueText(): Buffer | string | null {
+    const vs = this.vs;
+    const ve = this.ve;
+    if (vs < 0) return null;
+    if (this.text === null) {
+      this.text = this.buf.toString('latin1');
+      this.allAscii = isAscii(this.buf);
+    }
+    if (this.allAscii) return this.text.slice(vs, ve);
+    const bytes = this.b.bytes;
+    let j = vs;
+    while (j < ve && bytes[j] < 0x80) j++;
+    return j === ve ? this.text.slice(vs, ve) : this.buf.subarray(vs, ve);
   }
 
   record(i: number): RawRecord {
@@ -195,15 +187,11 @@ export class PackedRecordBatch implements RecordBatch {
     const ks = b.keyStart[i];
     r.key = ks < 0 ? null : this.keys.key(b.bytes, ks, b.keyEnd[i]);
     const vs = b.valueStart[i];
-    const ve = b.valueEnd[i];
-    if (vs < 0) r.value = null;
-    else if (this.allAscii) r.value = this.text.slice(vs, ve);
-    else {
-      const bytes = b.bytes;
-      let j = vs;
-      while (j < ve && bytes[j] < 0x80) j++;
-      r.value = j === ve ? this.text.slice(vs, ve) : this.buf.subarray(vs, ve);
-    }
+    this.vs = vs;
+    this.ve = b.valueEnd[i];
+    r.valueBytes = vs < 0 ? null : b.bytes;
+    r.valueStart = vs;
+    r.valueEnd = this.ve;
     r.headers = NO_HEADERS as RawRecord['headers'];
     const hs = b.headers;
     if (hs.length > 0) {

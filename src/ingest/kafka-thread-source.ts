@@ -10,7 +10,8 @@ import { fileURLToPath } from 'node:url';
 import { Worker } from 'node:worker_threads';
 import { silentKafkaLogger, type KafkaLogger } from './kafka-client.js';
 import type { KafkaSourceOptions } from './kafka-source.js';
-import { KeyTable, PackedRecordBatch, toWire, type FromWorker, type ToWorker } from './kafka-thread-protocol.js';
+import { KeyTable } from './key-table.js';
+import { PackedRecordBatch, toWire, type FromWorker, type ToWorker } from './kafka-thread-protocol.js';
 import type { Source, SourceHandlers } from './source.js';
 
 /** The worker's compiled script: next to this file in dist/, or in dist/ when this file runs from src/ (tests). */

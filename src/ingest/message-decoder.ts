@@ -14,6 +14,7 @@
  * Rejection order: oversized, missing value (a tombstone), unparseable, time, stream, value (as in records.ts).
  */
 import { FIELD_ABSENT, FIELD_BOOLEAN, FIELD_NULL, FIELD_NUMBER, FIELD_STRING, FlatJsonScanner } from './flat-json.js';
+import { KeyTable } from './key-table.js';
 import { EventSlot, MAX_DIM, type DecodeRejection } from './event.js';
 import { checkEpochMs, parseRfc3339, parseTextNumber, splitCsvLine } from './records.js';
 import type { RawRecord } from './source.js';
@@ -217,6 +218,11 @@ function asText(v: Buffer | string): string {
   return typeof v === 'string' ? v : v.toString('utf8');
 }
 
+/** The text of UTF-8 bytes b[from, to) (invalid sequences become U+FFFD, as Buffer decoding does everywhere). */
+function utf8Text(b: Uint8Array, from: number, to: number): string {
+  return Buffer.from(b.buffer, b.byteOffset + from, to - from).toString('utf8');
+}
+
 function tooLong(v: Buffer | string, maxBytes: number): boolean {
   if (typeof v !== 'string') return v.length > maxBytes;
   // A UTF-16 unit is 1 to 3 UTF-8 bytes (a surrogate pair is 4 for 2): count bytes only when it matters.
@@ -412,19 +418,38 @@ export function makeMessageDecoder(config: MessageDecoding, options: MessageDeco
     const keySlot = keyPath !== null ? nv : -1;
     const timeSlot = timePath !== null ? nv + (keyPath !== null ? 1 : 0) : -1;
     const scanner = new FlatJsonScanner([...rawPaths, ...(keyPath ? [keyPath[0]] : []), ...(timePath ? [timePath[0]] : [])]);
-    const fieldValue = (text: string, k: number): unknown => {
+    // Stream names from a JSON field come through a table keyed by their bytes: no string per message.
+    const fieldKeys = new KeyTable();
+    const fieldValue = (bytes: Uint8Array, k: number): unknown => {
       const kind = scanner.kind[k];
       if (kind === FIELD_NUMBER) return scanner.num[k];
-      if (kind === FIELD_STRING) return text.slice(scanner.start[k], scanner.end[k]);
+      if (kind === FIELD_STRING) {
+        if (k !== keySlot) return utf8Text(bytes, scanner.start[k], scanner.end[k]);
+        const key = fieldKeys.key(bytes, scanner.start[k], scanner.end[k]);
+        return typeof key === 'string' ? key : key.toString('utf8');
+      }
       if (kind === FIELD_NULL) return null;
       if (kind === FIELD_BOOLEAN) return true; // only its type matters: wrong_type
       return undefined;
     };
     return (r, out) => {
-      if (r.value === null) return 'missing_field';
-      if (tooLong(r.value, maxBytes)) return 'oversized';
-      const text = asText(r.value);
-      if (!scanner.scan(text)) return viaParse(text, r, out);
+      // The value's bytes where they lie when the source offers them (RawRecord.valueBytes), else its own.
+      let bytes: Uint8Array;
+      let from = 0;
+      let to: number;
+      const vb = r.valueBytes;
+      if (vb !== undefined && vb !== null) {
+        bytes = vb;
+        from = r.valueStart ?? 0;
+        to = r.valueEnd ?? vb.length;
+      } else {
+        const v = r.value;
+        if (v === null) return 'missing_field';
+        bytes = typeof v === 'string' ? Buffer.from(v, 'utf8') : v;
+        to = bytes.length;
+      }
+      if (to - from > maxBytes) return 'oversized';
+      if (!scanner.scan(bytes, from, to)) return viaParse(utf8Text(bytes, from, to), r, out);
       let tr: DecodeRejection | null;
       if (timeSlot >= 0) {
         if (scanner.kind[timeSlot] === FIELD_NUMBER && time.from === 'field' && time.unit === 'ms') {
@@ -434,11 +459,11 @@ export function makeMessageDecoder(config: MessageDecoding, options: MessageDeco
             out.ts = ms;
             tr = null;
           }
-        } else tr = timeValue(fieldValue(text, timeSlot), (time as { unit: TimeUnit }).unit, out);
+        } else tr = timeValue(fieldValue(bytes, timeSlot), (time as { unit: TimeUnit }).unit, out);
       } else if (time.from === 'header') tr = timeValue(headerText(r, time.name), time.unit, out);
       else tr = recordTime(r, out);
       if (tr !== null) return tr;
-      const sr = keySlot >= 0 ? innerKey(fieldValue(text, keySlot), out) : outerStream(r, out);
+      const sr = keySlot >= 0 ? innerKey(fieldValue(bytes, keySlot), out) : outerStream(r, out);
       if (sr !== null) return sr;
       if (nv === 1) {
         const kind = scanner.kind[0];
@@ -452,7 +477,7 @@ export function makeMessageDecoder(config: MessageDecoding, options: MessageDeco
         return kind === FIELD_ABSENT || kind === FIELD_NULL ? 'missing_field' : 'wrong_type';
       }
       const vals: (number | DecodeRejection)[] = [];
-      for (let k = 0; k < nv; k++) vals.push(jsonNumber(fieldValue(text, k)));
+      for (let k = 0; k < nv; k++) vals.push(jsonNumber(fieldValue(bytes, k)));
       return setValues(vals, out);
     };
   }

@@ -100,6 +100,76 @@ export function scanJsonNumber(s: string, i: number, end: number): number {
   return Number(s.slice(start, i));
 }
 
+/**
+ * scanJsonNumber over bytes (UTF-8 or ASCII text in b[i, end)): the same grammar and the same exact result, for
+ * decoders that read a message's bytes where they lie instead of making a string of them. Sets numEnd too.
+ * (Two loops for one grammar: a character read through a shared accessor is several times slower in V8.)
+ */
+export function scanJsonNumberBytes(b: Uint8Array, i: number, end: number): number {
+  const start = i;
+  let neg = false;
+  let c = i < end ? b[i] : -1;
+  if (c === 45 /* - */) {
+    neg = true;
+    i++;
+    c = i < end ? b[i] : -1;
+  }
+  let m = 0;
+  let digits = 0;
+  let exp10 = 0;
+  if (c === 48 /* 0 */) {
+    i++;
+    c = i < end ? b[i] : -1;
+  } else if (c >= 49 && c <= 57) {
+    while (c >= 48 && c <= 57) {
+      m = m * 10 + (c - 48);
+      if (m !== 0) digits++;
+      i++;
+      c = i < end ? b[i] : -1;
+    }
+  } else {
+    return NaN;
+  }
+  if (c === 46 /* . */) {
+    i++;
+    c = i < end ? b[i] : -1;
+    if (!(c >= 48 && c <= 57)) return NaN;
+    while (c >= 48 && c <= 57) {
+      m = m * 10 + (c - 48);
+      if (m !== 0) digits++;
+      exp10--;
+      i++;
+      c = i < end ? b[i] : -1;
+    }
+  }
+  if (c === 101 || c === 69 /* e E */) {
+    i++;
+    c = i < end ? b[i] : -1;
+    let eneg = false;
+    if (c === 43 || c === 45) {
+      eneg = c === 45;
+      i++;
+      c = i < end ? b[i] : -1;
+    }
+    if (!(c >= 48 && c <= 57)) return NaN;
+    let e = 0;
+    while (c >= 48 && c <= 57) {
+      if (e < 100000) e = e * 10 + (c - 48);
+      i++;
+      c = i < end ? b[i] : -1;
+    }
+    exp10 += eneg ? -e : e;
+  }
+  numEnd = i;
+  if (digits <= 15 && exp10 >= -22 && exp10 <= 22) {
+    const v = exp10 < 0 ? m / POW10[-exp10] : m * POW10[exp10];
+    return neg ? -v : v;
+  }
+  if (m === 0) return neg ? -0 : 0;
+  // The number's characters are ASCII: one code unit a byte.
+  return Number(Buffer.from(b.buffer, b.byteOffset + start, i - start).toString('latin1'));
+}
+
 const CSV_NUMBER = /^[ \t]*[+-]?(\d+\.?\d*|\.\d+)([eE][+-]?\d+)?[ \t]*$/;
 const CSV_NOT_FINITE = /^[ \t]*[+-]?(nan|inf|infinity)[ \t]*$/i;
 

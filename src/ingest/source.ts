@@ -14,6 +14,14 @@ export interface RawRecord {
   key: Buffer | string | null;
   /** The payload bytes (or a line of text for files). */
   value: Buffer | string | null;
+  /**
+   * The same payload's bytes where the source holds them, valueBytes[valueStart, valueEnd), when it has them in
+   * one array: a decoder that reads bytes takes them from here without a string or an object per record. Absent
+   * or null: read `value`.
+   */
+  valueBytes?: Uint8Array | null;
+  valueStart?: number;
+  valueEnd?: number;
   /** Record timestamp, epoch ms (Kafka timestamp; for files, 0 and the decoder reads the ts field). */
   timestamp: number;
   headers: Record<string, Buffer | string | undefined>;
