@@ -5,6 +5,7 @@
  *   monitor calls), best and median of several timed passes over pre-generated events;
  * - 4-D stepwise update, K = 4 (benchMvStepwise in mv-bench.ts);
  * - an allocation check: heap growth and garbage collections over 1M updates;
+ * - the daemon thread's per-event path on packed batches: read, decode, route and model (pipeline-bench.ts);
  * - the batch fit of 100k 1-D points, k = 1..4 by BIC, beside scikit-learn's GaussianMixture on the
  *   same data, tolerance, n_init and max_iter (tests/reference/sklearn_bench.py), with the ratio.
  *
@@ -15,13 +16,14 @@ import { spawnSync } from 'node:child_process';
 import { mkdtempSync, rmSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
-import { PerformanceObserver } from 'node:perf_hooks';
 import { fileURLToPath } from 'node:url';
 import { selectMixture1D } from '../math/batch-em1d.js';
 import { Mixture1D } from '../math/mixture1d.js';
 import { Random } from '../math/random.js';
 import { OnlineMixture1D } from '../math/stepwise-em1d.js';
 import { benchMvStepwise, type BenchFigure } from './mv-bench.js';
+import { collectionsDuring } from './gc.js';
+import { benchPipeline } from './pipeline-bench.js';
 
 const QUICK = process.env.BENCH_QUICK === '1';
 
@@ -99,16 +101,11 @@ async function benchAllocation(): Promise<void> {
   const model = OnlineMixture1D.fromMixture(truth1D(), { window: 5000 });
   passUpdate(model, data.subarray(0, 100_000), 0); // warm-up: let the JIT settle first
   await new Promise((r) => setTimeout(r, 50));
-  let gcs = 0;
-  const obs = new PerformanceObserver((list) => {
-    gcs += list.getEntries().length;
-  });
-  obs.observe({ entryTypes: ['gc'] });
   const before = process.memoryUsage().heapUsed;
-  passUpdate(model, data, 100_000);
-  const after = process.memoryUsage().heapUsed;
-  await new Promise((r) => setTimeout(r, 50)); // let the observer deliver its entries
-  obs.disconnect();
+  const { result: after, collections: gcs } = await collectionsDuring(() => {
+    passUpdate(model, data, 100_000);
+    return process.memoryUsage().heapUsed;
+  });
   emit({ bench: 'stepwise_update_1d_1m_heap_growth', value: after - before, unit: 'bytes' });
   emit({ bench: 'stepwise_update_1d_1m_gc_count', value: gcs, unit: 'collections' });
 }
@@ -202,6 +199,7 @@ async function main(): Promise<void> {
   if (!only || only === 'stepwise') benchStepwise1D();
   if (!only || only === 'mv') for (const f of benchMvStepwise()) emit({ ...f });
   if (!only || only === 'alloc') await benchAllocation();
+  if (!only || only === 'pipeline') for (const f of await benchPipeline()) emit({ ...f });
   if (!only || only === 'batch') benchBatch();
 }
 

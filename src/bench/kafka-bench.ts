@@ -30,9 +30,7 @@ import { mkdir, mkdtemp, rm, writeFile } from 'node:fs/promises';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { pathToFileURL } from 'node:url';
-import { setFlagsFromString } from 'node:v8';
 import { Worker } from 'node:worker_threads';
-import { runInNewContext } from 'node:vm';
 import pino from 'pino';
 import { loadOrExplain, startDaemon } from '../cli/run-command.js';
 import { defaultResolver } from '../cli/replay.js';
@@ -45,6 +43,8 @@ import { buildScenario } from '../simulate/suite.js';
 import type { MonitorState } from '../detect/stream-monitor.js';
 import { StreamRegistry, type RegistrySnapshot } from '../streams/stream-registry.js';
 import type { BareConsumerJob, BareConsumerResult } from './bare-consumer-thread.js';
+import { gcFunction } from './gc.js';
+import { inventedLatencyMessage } from './invented-latency.js';
 
 interface Figure {
   bench: string;
@@ -62,9 +62,7 @@ function note(msg: string): void {
   console.error(`[bench:kafka] ${msg}`);
 }
 
-const STREAMS = 10;
-
-/** Invented latencies: per stream a two-mode log-normal mixture (fast ~40 ms, slow ~180 ms). */
+/** Produces n invented latency events (invented-latency.ts) to a new one-partition topic; false when the topic already holds them. */
 async function produceEvents(brokers: string[], topic: string, n: number): Promise<boolean> {
   const kafka = new Kafka({ clientId: 'modewatch-bench', brokers, logLevel: logLevel.NOTHING });
   const admin = kafka.admin();
@@ -83,17 +81,12 @@ async function produceEvents(brokers: string[], topic: string, n: number): Promi
   const producer = kafka.producer({ allowAutoTopicCreation: false });
   await producer.connect();
   const rng = new Random(42);
-  const t0 = Date.UTC(2026, 0, 1);
   // kafkajs groups a send's messages by partition in time quadratic in their number: many small sends.
   const chunk = 1_000;
   const inflight: Promise<unknown>[] = [];
   for (let i = 0; i < n; i += chunk) {
     const messages = [];
-    for (let j = i; j < Math.min(n, i + chunk); j++) {
-      const slow = rng.uniform() < 0.2;
-      const value = Math.exp((slow ? Math.log(180) : Math.log(40)) + (slow ? 0.3 : 0.25) * rng.normal());
-      messages.push({ key: `svc-${j % STREAMS}`, value: `{"ts":${t0 + j * 5},"value":${value.toFixed(3)}}` });
-    }
+    for (let j = i; j < Math.min(n, i + chunk); j++) messages.push(inventedLatencyMessage(j, rng));
     // A few requests in flight: produce is not what is measured, but it should not take all day.
     inflight.push(producer.send({ topic, acks: 1, messages }));
     if (inflight.length >= 16) await inflight.shift();
@@ -162,11 +155,6 @@ async function daemonPipeline(brokers: string[], topic: string, n: number, dir: 
 }
 
 // -------------------------------------------------------------------------------------------------- memory
-
-function gcFunction(): () => void {
-  setFlagsFromString('--expose-gc');
-  return runInNewContext('gc') as () => void;
-}
 
 type NumberSnapshot = RegistrySnapshot & { monitor: { kind: 'number'; state: MonitorState } };
 

@@ -38,35 +38,74 @@ export class AlertDesk {
   readonly owned: Uint8Array;
   pendingCount = 0;
   private readonly h: number;
-  /** e^(h/4), e^h and e^(2h): the shift statistics are kept as ratios R = e^S (cusum-bank.ts). */
+  /** e^(h/4), e^(h/2), e^h and e^(2h): the shift statistics are kept as ratios R = e^S (cusum-bank.ts). */
   private readonly quarterRatio: number;
+  private readonly halfRatio: number;
   private readonly hRatio: number;
   private readonly capRatio: number;
 
   constructor(
     stream: string,
     listener: TransitionListener,
-    statistics: number,
+    /** Shift statistics: perComponent for each of up to `components` reference components, in that order. */
+    components: number,
+    perComponent: number,
     private readonly config: MonitorConfig,
     private readonly shifts: RatioCusums,
     private readonly fit: ScoreCusums,
     private readonly hooks: DeskHooks,
   ) {
     this.book = new AlertBook(stream, listener);
-    this.owned = new Uint8Array(statistics);
+    this.owned = new Uint8Array(components * perComponent);
+    this.ratios = new Float64Array(perComponent);
     this.h = config.threshold;
+    this.halfRatio = Math.exp(0.5 * config.threshold);
     this.quarterRatio = Math.exp(0.25 * config.threshold);
     this.hRatio = Math.exp(config.threshold);
     this.capRatio = Math.exp(2 * config.threshold);
   }
 
-  /** Whether statistic i, now at ratio R = e^S, needs afterStep: near the threshold, or owned. Cheap enough for every event. */
-  needsAttention(i: number, ratio: number): boolean {
-    return ratio >= this.quarterRatio || this.owned[i] !== FREE;
+  /**
+   * The event being stepped, set by the monitor once per event: fields, not arguments, because V8 boxes (allocates)
+   * the double arguments of a call it does not inline.
+   */
+  eventTs = 0;
+  eventOffset = 0;
+  eventCount = 0;
+  /** The largest shift statistic stepped since beginEvent, as a ratio R = e^S. */
+  maxRatio = 1;
+  /** Where the monitor writes one component's likelihood ratios for stepShifts. */
+  readonly ratios: Float64Array;
+
+  /** A new event, the monitor's eventCount-th accepted: set eventTs and eventOffset too, then step. */
+  beginEvent(eventCount: number): void {
+    this.eventCount = eventCount;
+    this.maxRatio = 1;
+  }
+
+  /** Whether every shift statistic stepped since beginEvent is below half its threshold. */
+  shiftsQuiet(): boolean {
+    return this.maxRatio < this.halfRatio;
+  }
+
+  /**
+   * One CUSUM step for statistics base .. base+count-1, with the event's likelihood ratios this.ratios[0 .. count)
+   * (the statistics are ratios R = e^S, cusum-bank.ts); then, for a statistic near the threshold or owned by an
+   * alert, afterStep. The bank's step has this one call site, so V8 inlines it here.
+   */
+  stepShifts(base: number, count: number): void {
+    const bank = this.shifts;
+    const ratios = this.ratios;
+    for (let s = 0; s < count; s++) {
+      const i = base + s;
+      const r = bank.step(i, ratios[s], this.eventOffset, this.eventTs);
+      if (r > this.maxRatio) this.maxRatio = r;
+      if (r >= this.quarterRatio || this.owned[i] !== FREE) this.afterStep(i, r, this.eventCount, this.eventTs, this.eventOffset);
+    }
   }
 
   /** After statistic i reached R = e^S: open an alert on a crossing (S >= h); resolve (S below h/4) or cap (S at 2h) an owned one. */
-  afterStep(i: number, ratio: number, eventCount: number, ts: number, offset: number): void {
+  private afterStep(i: number, ratio: number, eventCount: number, ts: number, offset: number): void {
     const o = this.owned[i];
     if (o !== FREE) {
       // Capped so that it can come back down when the change goes away.

@@ -68,8 +68,12 @@ export class StreamMonitor implements Monitor {
   private readonly locConsts: Float64Array;
   /** e^(-λ²/2), the location alternatives' constant factor. */
   private readonly shiftPenalty: number = 0;
-  /** e^(h/2): an event is quiet while every shift statistic's ratio is below it. */
-  private readonly halfRatio: number = 0;
+  /** The event in hand: its value (stream units), time and offset; its value on the model scale, and its surprise. */
+  private evX = 0;
+  private evTs = 0;
+  private evOffset = 0;
+  private evY = 0;
+  private evSurprise = 0;
   /** Per reference component, a short moving average of its responsibility: what its weight is right now. */
   private readonly recentShare: Float64Array;
   private readonly surprise = new SurpriseTracker();
@@ -91,8 +95,7 @@ export class StreamMonitor implements Monitor {
     this.recentShare = new Float64Array(config.capacity);
     this.locConsts = new Float64Array(2 * config.capacity);
     this.shiftPenalty = Math.exp(-0.5 * config.locationShiftSds * config.locationShiftSds);
-    this.halfRatio = Math.exp(0.5 * config.threshold);
-    this.desk = new AlertDesk(stream, listener, config.capacity * PER_COMPONENT, config, this.shifts, this.fit, {
+    this.desk = new AlertDesk(stream, listener, config.capacity, PER_COMPONENT, config, this.shifts, this.fit, {
       kindOf: (i) => STAT_KINDS[i % PER_COMPONENT],
       componentOf: (i) => (this.ref as OnlineMixture1D).id(Math.floor(i / PER_COMPONENT)),
       isVanish: (i) => i % PER_COMPONENT === VANISH,
@@ -155,6 +158,28 @@ export class StreamMonitor implements Monitor {
 
   /** Feed one value (stream units) at event time ts (ms) from input position offset. Returns a rejection reason or null. */
   observe(x: number, ts: number, offset: number): ValueRejection | null {
+    this.evX = x;
+    this.evTs = ts;
+    this.evOffset = offset;
+    return this.observeHeld();
+  }
+
+  /**
+   * observe() for an event held in an object (the daemon's shared EventSlot): its doubles go to the monitor
+   * through fields, not call arguments, which V8 boxes (allocates) per call when it does not inline the callee.
+   */
+  observeEvent(e: { readonly value: number; readonly ts: number; readonly offset: number }): ValueRejection | null {
+    this.evX = e.value;
+    this.evTs = e.ts;
+    this.evOffset = e.offset;
+    return this.observeHeld();
+  }
+
+  /** The event in evX/evTs/evOffset. */
+  private observeHeld(): ValueRejection | null {
+    const x = this.evX;
+    const ts = this.evTs;
+    const offset = this.evOffset;
     if (this.phase === 'bootstrap') {
       if (!Number.isFinite(x)) return 'not_finite';
       if (this.config.scale !== 'auto') {
@@ -181,7 +206,12 @@ export class StreamMonitor implements Monitor {
     cur.evaluate(y);
     const surprise = -ref.lastLogDensity;
     let quiet = true;
-    if (this.phase === 'armed') quiet = this.detect(ref, y, surprise, ts, offset);
+    if (this.phase === 'armed') {
+      // Doubles reach detect through fields, as they reached this method.
+      this.evY = y;
+      this.evSurprise = surprise;
+      quiet = this.detect(ref);
+    }
     else if (this.accepted >= this.config.warmupEvents) this.arm();
     else this.learnStructure(y, offset, ts);
 
@@ -200,26 +230,30 @@ export class StreamMonitor implements Monitor {
 
   // ---- detection (per event) ----
 
-  /** Runs every detector on y; returns true when every statistic is below half its threshold. */
-  private detect(ref: OnlineMixture1D, y: number, surprise: number, ts: number, offset: number): boolean {
+  /** Runs every detector on the event in evY/evSurprise/evTs/evOffset; true when every statistic is below half its threshold. */
+  private detect(ref: OnlineMixture1D): boolean {
     const cfg = this.config;
     const h = cfg.threshold;
+    const y = this.evY;
+    const ts = this.evTs;
+    const offset = this.evOffset;
     const k = ref.k;
     let rG = 0;
     for (let j = 0; j < k; j++) rG += ref.responsibility(j);
     const lambda = cfg.locationShiftSds;
     const shiftPenalty = this.shiftPenalty;
-    // Statistics are ratios R = e^S (cusum-bank.ts): track the largest R.
-    let maxRatio = 1;
-    let st = 0;
     const cs = this.consts;
     const loc = this.locConsts;
     const share = this.recentShare;
+    const desk = this.desk;
+    const rt = desk.ratios;
+    desk.beginEvent(this.accepted);
+    desk.eventTs = ts;
+    desk.eventOffset = offset;
     for (let j = 0; j < k; j++) {
       const r = ref.responsibility(j);
       share[j] += RECENT_GAIN * (r - share[j]);
       const c = j * WEIGHT_CONSTS;
-      const base = j * PER_COMPONENT;
       // Location and sd of the reference as of the last housekeeping (at most 256 events old, and fixed while an
       // alert is active): the statistic still uses only what was known before the event.
       let lz = lambda * (y - loc[2 * j]) * loc[2 * j + 1];
@@ -227,51 +261,34 @@ export class StreamMonitor implements Monitor {
         // The event is plainly another component's: every weight ratio is its constant b for "not this one"
         // (within 1e-9), and the location ratio is 1 (r·e^|λz| < 1e-6). Most events take this path in
         // well-separated mixtures.
-        st = this.step(base + W_UP, cs[c + C_UP_B], offset, ts);
-        if (st > maxRatio) maxRatio = st;
-        st = this.step(base + W_DOWN, cs[c + C_DN_B], offset, ts);
-        if (st > maxRatio) maxRatio = st;
-        st = this.step(base + VANISH, cs[c + C_VA_B], offset, ts);
-        if (st > maxRatio) maxRatio = st;
-        st = this.step(base + LOC_UP, 1, offset, ts);
-        if (st > maxRatio) maxRatio = st;
-        st = this.step(base + LOC_DOWN, 1, offset, ts);
-        if (st > maxRatio) maxRatio = st;
-        continue;
+        rt[W_UP] = cs[c + C_UP_B];
+        rt[W_DOWN] = cs[c + C_DN_B];
+        rt[VANISH] = cs[c + C_VA_B];
+        rt[LOC_UP] = 1;
+        rt[LOC_DOWN] = 1;
+      } else {
+        const rOther = rG - r;
+        rt[W_UP] = 1 + r * (cs[c + C_UP_A] - 1) + rOther * (cs[c + C_UP_B] - 1);
+        rt[W_DOWN] = 1 + r * (cs[c + C_DN_A] - 1) + rOther * (cs[c + C_DN_B] - 1);
+        rt[VANISH] = 1 + r * (cs[c + C_VA_A] - 1) + rOther * (cs[c + C_VA_B] - 1);
+        // Location: f'(y)/f(y) = exp(±λz - λ²/2) for a shift of ±λ sd; clamp so far events cannot overflow.
+        if (lz > 50) lz = 50;
+        else if (lz < -50) lz = -50;
+        const e = Math.exp(lz);
+        rt[LOC_UP] = 1 + r * (e * shiftPenalty - 1);
+        rt[LOC_DOWN] = 1 + r * (shiftPenalty / e - 1);
       }
-      const rOther = rG - r;
-      st = this.step(base + W_UP, 1 + r * (cs[c + C_UP_A] - 1) + rOther * (cs[c + C_UP_B] - 1), offset, ts);
-      if (st > maxRatio) maxRatio = st;
-      st = this.step(base + W_DOWN, 1 + r * (cs[c + C_DN_A] - 1) + rOther * (cs[c + C_DN_B] - 1), offset, ts);
-      if (st > maxRatio) maxRatio = st;
-      st = this.step(base + VANISH, 1 + r * (cs[c + C_VA_A] - 1) + rOther * (cs[c + C_VA_B] - 1), offset, ts);
-      if (st > maxRatio) maxRatio = st;
-      // Location: f'(y)/f(y) = exp(±λz - λ²/2) for a shift of ±λ sd; clamp so far events cannot overflow.
-      if (lz > 50) lz = 50;
-      else if (lz < -50) lz = -50;
-      const e = Math.exp(lz);
-      st = this.step(base + LOC_UP, 1 + r * (e * shiftPenalty - 1), offset, ts);
-      if (st > maxRatio) maxRatio = st;
-      st = this.step(base + LOC_DOWN, 1 + r * (shiftPenalty / e - 1), offset, ts);
-      if (st > maxRatio) maxRatio = st;
+      desk.stepShifts(j * PER_COMPONENT, PER_COMPONENT);
     }
     // Fit: standardised surprise, clipped so one wild event cannot decide alone.
-    const fitStat = this.fit.step(0, this.surprise.standardized(surprise, FIT_CLIP) - FIT_SLACK, offset, ts);
+    const fitStat = this.fit.step(0, this.surprise.standardized(this.evSurprise, FIT_CLIP) - FIT_SLACK, offset, ts);
     if (fitStat >= cfg.fitThreshold && this.desk.book.get(this.desk.book.key('poor_fit', null)) === undefined) this.desk.openFit(this.accepted, ts);
 
     const bin = this.grid.step(y, offset, ts, h);
     if (bin >= 0) this.onNovelty(bin, ts, offset);
 
     if (this.desk.pendingCount > 0) this.desk.confirm(this.accepted, ts, offset);
-    return maxRatio < this.halfRatio && fitStat < 0.5 * cfg.fitThreshold && this.desk.book.size === 0;
-  }
-
-  /** One CUSUM step with the event's likelihood ratio; the desk opens an alert on a crossing, resolves or caps one that is active. */
-  private step(i: number, ratio: number, offset: number, ts: number): number {
-    const s = this.shifts.step(i, ratio, offset, ts);
-    // Small enough to inline: the rest only matters near the threshold or for a statistic an alert owns.
-    if (this.desk.needsAttention(i, s)) this.desk.afterStep(i, s, this.accepted, ts, offset);
-    return s;
+    return desk.shiftsQuiet() && fitStat < 0.5 * cfg.fitThreshold && desk.book.size === 0;
   }
 
   // ---- alerts (rare: allocation is fine here) ----

@@ -89,8 +89,12 @@ export class VectorStreamMonitor {
   private readonly fit = new ScoreCusums(1);
   private novelty: VectorNovelty | null = null;
   private readonly consts: Float64Array;
-  /** e^(h/2): an event is quiet while every shift statistic's ratio is below it. */
-  private readonly halfRatio: number = 0;
+  /** The event in hand, for detect: the Gaussians' share, its surprises, time and offset. */
+  private evRG = 0;
+  private evSurprise = 0;
+  private evNovelSurprise = 0;
+  private evTs = 0;
+  private evOffset = 0;
   /** Per component and axis: √C_ii and the location penalty λ²·C_ii·(C⁻¹)_ii/2 (working frame). */
   private readonly locSd: Float64Array;
   private readonly locPen: Float64Array;
@@ -119,10 +123,9 @@ export class VectorStreamMonitor {
     this.curIds = new Int32Array(config.capacity);
     this.shifts = new RatioCusums(config.capacity * PER_COMPONENT);
     this.consts = new Float64Array(config.capacity * WEIGHT_CONSTS);
-    this.halfRatio = Math.exp(0.5 * config.threshold);
     this.locSd = new Float64Array(config.capacity * MV_MAX_DIM);
     this.locPen = new Float64Array(config.capacity * MV_MAX_DIM);
-    this.desk = new AlertDesk(stream, listener, config.capacity * PER_COMPONENT, config, this.shifts, this.fit, {
+    this.desk = new AlertDesk(stream, listener, config.capacity, PER_COMPONENT, config, this.shifts, this.fit, {
       kindOf: (i) => statKind(i % PER_COMPONENT),
       componentOf: (i) => this.refIds[Math.floor(i / PER_COMPONENT)],
       isVanish: (i) => i % PER_COMPONENT === VANISH,
@@ -175,6 +178,25 @@ export class VectorStreamMonitor {
    * The first event fixes the dimension; later events of another dimension are rejected.
    */
   observeVector(x: Float64Array, dim: number, ts: number, offset: number): 'not_finite' | 'wrong_dimension' | null {
+    this.evTs = ts;
+    this.evOffset = offset;
+    return this.observeHeld(x, dim);
+  }
+
+  /**
+   * observeVector() for an event held in an object (the daemon's shared EventSlot): its time goes to the monitor
+   * through a field, not a call argument, which V8 boxes (allocates) per call when it does not inline the callee.
+   */
+  observeEvent(e: { readonly vector: Float64Array; readonly dim: number; readonly ts: number; readonly offset: number }): 'not_finite' | 'wrong_dimension' | null {
+    this.evTs = e.ts;
+    this.evOffset = e.offset;
+    return this.observeHeld(e.vector, e.dim);
+  }
+
+  /** The event x[0..dim) at evTs, evOffset. */
+  private observeHeld(x: Float64Array, dim: number): 'not_finite' | 'wrong_dimension' | null {
+    const ts = this.evTs;
+    const offset = this.evOffset;
     if (!Number.isInteger(dim) || dim < 1 || dim > MV_MAX_DIM || dim > x.length) return 'wrong_dimension';
     if (this.d === 0) this.setDimension(dim);
     else if (dim !== this.d) return 'wrong_dimension';
@@ -206,7 +228,13 @@ export class VectorStreamMonitor {
     const novelSurprise = Math.min(surprise, -curLogP);
 
     let quiet = true;
-    if (this.phase === 'armed') quiet = this.detect(ref, rG, surprise, novelSurprise, ts, offset);
+    if (this.phase === 'armed') {
+      // Doubles reach detect through fields: V8 boxes the double arguments of a call it does not inline.
+      this.evRG = rG;
+      this.evSurprise = surprise;
+      this.evNovelSurprise = novelSurprise;
+      quiet = this.detect(ref);
+    }
     else if (this.accepted >= this.config.warmupEvents) this.arm();
     else this.learnStructure(novelSurprise, ts, offset);
 
@@ -226,20 +254,26 @@ export class VectorStreamMonitor {
 
   // ---- detection (per event) ----
 
-  private detect(ref: OnlineMvMixture, rG: number, surprise: number, novelSurprise: number, ts: number, offset: number): boolean {
+  /** Runs every detector on the event in xv (rG, surprises, time and offset in the ev* fields); true when quiet. */
+  private detect(ref: OnlineMvMixture): boolean {
     const cfg = this.config;
     const h = cfg.threshold;
     const k = ref.k;
     const d = this.d;
     const cs = this.consts;
     const resp = this.resp;
-    // Statistics are ratios R = e^S (cusum-bank.ts): track the largest R.
-    let maxStat = 1;
+    const rG = this.evRG;
+    const ts = this.evTs;
+    const offset = this.evOffset;
+    const desk = this.desk;
+    const rt = desk.ratios;
+    desk.beginEvent(this.accepted);
+    desk.eventTs = ts;
+    desk.eventOffset = offset;
     ref.mixture.toFrame(this.xv, this.z);
     for (let j = 0; j < k; j++) {
       const r = rG * resp[j];
       const c = j * WEIGHT_CONSTS;
-      const base = j * PER_COMPONENT;
       const rOther = rG - r;
       this.locationTerms(ref.mixture, j);
       const u = this.u;
@@ -248,42 +282,34 @@ export class VectorStreamMonitor {
       if (r < 1e-12 && rG > 1 - 1e-9 && !far) {
         // The event is plainly another component's: each weight ratio is its constant for "not this one"
         // (within 1e-9) and each location ratio is 1 (r·e^|λz| < 1e-6). Most events take this path.
-        maxStat = Math.max(
-          maxStat,
-          this.step(base + W_UP, cs[c + C_UP_B], offset, ts),
-          this.step(base + W_DOWN, cs[c + C_DN_B], offset, ts),
-          this.step(base + VANISH, cs[c + C_VA_B], offset, ts),
-        );
-        for (let i = 0; i < 2 * d; i++) maxStat = Math.max(maxStat, this.step(base + LOC + i, 1, offset, ts));
-        continue;
+        rt[W_UP] = cs[c + C_UP_B];
+        rt[W_DOWN] = cs[c + C_DN_B];
+        rt[VANISH] = cs[c + C_VA_B];
+        for (let i = 0; i < 2 * d; i++) rt[LOC + i] = 1;
+      } else {
+        rt[W_UP] = 1 + r * (cs[c + C_UP_A] - 1) + rOther * (cs[c + C_UP_B] - 1);
+        rt[W_DOWN] = 1 + r * (cs[c + C_DN_A] - 1) + rOther * (cs[c + C_DN_B] - 1);
+        rt[VANISH] = 1 + r * (cs[c + C_VA_A] - 1) + rOther * (cs[c + C_VA_B] - 1);
+        for (let i = 0; i < d; i++) {
+          let lz = u[i];
+          if (lz > 50) lz = 50;
+          else if (lz < -50) lz = -50;
+          const pen = this.locPen[j * MV_MAX_DIM + i];
+          rt[LOC + 2 * i] = 1 + r * (Math.exp(lz - pen) - 1);
+          rt[LOC + 2 * i + 1] = 1 + r * (Math.exp(-lz - pen) - 1);
+        }
       }
-      maxStat = Math.max(
-        maxStat,
-        this.step(base + W_UP, 1 + r * (cs[c + C_UP_A] - 1) + rOther * (cs[c + C_UP_B] - 1), offset, ts),
-        this.step(base + W_DOWN, 1 + r * (cs[c + C_DN_A] - 1) + rOther * (cs[c + C_DN_B] - 1), offset, ts),
-        this.step(base + VANISH, 1 + r * (cs[c + C_VA_A] - 1) + rOther * (cs[c + C_VA_B] - 1), offset, ts),
-      );
-      for (let i = 0; i < d; i++) {
-        let lz = u[i];
-        if (lz > 50) lz = 50;
-        else if (lz < -50) lz = -50;
-        const pen = this.locPen[j * MV_MAX_DIM + i];
-        maxStat = Math.max(
-          maxStat,
-          this.step(base + LOC + 2 * i, 1 + r * (Math.exp(lz - pen) - 1), offset, ts),
-          this.step(base + LOC + 2 * i + 1, 1 + r * (Math.exp(-lz - pen) - 1), offset, ts),
-        );
-      }
+      desk.stepShifts(j * PER_COMPONENT, LOC + 2 * d);
     }
     // Fit: standardised surprise, clipped so one wild event cannot decide alone.
-    const fitStat = this.fit.step(0, this.surprise.standardized(surprise, FIT_CLIP) - FIT_SLACK, offset, ts);
+    const fitStat = this.fit.step(0, this.surprise.standardized(this.evSurprise, FIT_CLIP) - FIT_SLACK, offset, ts);
     if (fitStat >= cfg.fitThreshold && this.desk.book.get(this.desk.book.key('poor_fit', null)) === undefined) this.desk.openFit(this.accepted, ts);
 
-    const cand = this.tagAndSearch(novelSurprise, ts, offset);
+    const cand = this.tagAndSearch(this.evNovelSurprise, ts, offset);
     if (cand !== null && cand.statistic >= h) this.onNovelty(cand, ts);
 
     if (this.desk.pendingCount > 0) this.desk.confirm(this.accepted, ts, offset);
-    return maxStat < this.halfRatio && fitStat < 0.5 * cfg.fitThreshold && this.desk.book.size === 0;
+    return desk.shiftsQuiet() && fitStat < 0.5 * cfg.fitThreshold && desk.book.size === 0;
   }
 
   /**
@@ -320,13 +346,6 @@ export class VectorStreamMonitor {
     }
     const lambda = this.config.locationShiftSds;
     for (let i = 0; i < d; i++) u[i] = lambda * u[i] * this.locSd[j * MV_MAX_DIM + i];
-  }
-
-  /** One CUSUM step with the event's likelihood ratio; the desk opens an alert on a crossing, resolves or caps one that is active. */
-  private step(i: number, ratio: number, offset: number, ts: number): number {
-    const s = this.shifts.step(i, ratio, offset, ts);
-    if (this.desk.needsAttention(i, s)) this.desk.afterStep(i, s, this.accepted, ts, offset);
-    return s;
   }
 
   /**

@@ -94,8 +94,8 @@ export class StreamRegistry {
     this.lastEntry = entry;
     const feed = entry.feed;
     let r: RouteRejection | null;
-    if (feed.kind === 'number') r = slot.dim === 1 ? feed.monitor.observe(slot.value, slot.ts, slot.offset) : 'wrong_dimension';
-    else r = slot.dim === 1 ? 'wrong_dimension' : feed.monitor.observeVector(slot.vector, slot.dim, slot.ts, slot.offset);
+    if (feed.kind === 'number') r = slot.dim === 1 ? feed.monitor.observeEvent(slot) : 'wrong_dimension';
+    else r = slot.dim === 1 ? 'wrong_dimension' : feed.monitor.observeEvent(slot);
     if (r !== null) {
       entry.rejected++;
       this.reject(r);
