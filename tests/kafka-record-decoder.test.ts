@@ -1,9 +1,11 @@
 /**
- * Our Kafka record decoder against kafkajs 2.2.4's own (the reference: the library it replaces a module of), on
- * record batches written by kafkajs's own encoder: the decoded records must be identical, field for field.
+ * Our Kafka record decoder and consumer Batch against kafkajs 2.2.4's own (the reference: the library whose modules
+ * they replace), on record batches written by kafkajs's own encoder and on fetched partitions with transactions:
+ * the results must be identical, field for field.
  */
 import { createRequire } from 'node:module';
 import { describe, expect, it } from 'vitest';
+import { makeFetchBatch, type KafkajsBatchConstructor, type KafkajsBatchInternals, type KafkajsPartitionData } from '../src/ingest/kafka-fetch-batch.js';
 import { makeRecordDecoder, type KafkajsRecordInternals } from '../src/ingest/kafka-record-decoder.js';
 import { KAFKAJS_CHECKED_VERSION } from '../src/ingest/kafkajs.js';
 
@@ -114,5 +116,72 @@ describe('Kafka record decoder (against kafkajs 2.2.4, on batches its own encode
     const { stock, ours } = await decodeBoth({ firstOffset: Long.fromValue(99), firstTimestamp: 1767225600000, maxTimestamp: 1767225600000, compression: GZIP }, someRecords(300, 2));
     expect(ours.records).toHaveLength(300);
     expect(ours).toEqual(stock);
+  });
+});
+
+/** kafkajs's consumer Batch as published, loaded afresh from its file (this thread may have ours in the cache). */
+function stockBatch(): KafkajsBatchConstructor {
+  const path = internal('consumer/batch.js');
+  const saved = require.cache[path];
+  delete require.cache[path];
+  const stock = require(path) as KafkajsBatchConstructor;
+  if (saved === undefined) delete require.cache[path];
+  else require.cache[path] = saved;
+  return stock;
+}
+
+describe('consumer Batch (against kafkajs 2.2.4 as published)', () => {
+  const Stock = stockBatch();
+  const Ours = makeFetchBatch(Stock, {
+    Long: Long as KafkajsBatchInternals['Long'],
+    filterAbortedMessages: require(internal('consumer/filterAbortedMessages.js')) as KafkajsBatchInternals['filterAbortedMessages'],
+  });
+  type Msg = { offset: string; key: Buffer | null; isControlRecord: boolean; batchContext: { producerId: string; inTransaction: boolean } };
+  const msg = (offset: string, producerId = '-1', inTransaction = false, control = false, key: Buffer | null = Buffer.from('k')): Msg => ({
+    offset,
+    key,
+    isControlRecord: control,
+    batchContext: { producerId, inTransaction },
+  });
+  const view = (b: object) => {
+    const x = b as Record<string, unknown> & Record<'firstOffset' | 'lastOffset' | 'offsetLag' | 'offsetLagLow' | 'isEmpty', () => unknown>;
+    return { fields: { ...x }, keys: Object.keys(x), first: x.firstOffset(), last: x.lastOffset(), lag: x.offsetLag(), lagLow: x.offsetLagLow(), empty: x.isEmpty() };
+  };
+  const cases: [string, string, KafkajsPartitionData<Msg>][] = [
+    ['offsets before the one fetched are dropped', '5', { partition: 0, highWatermark: '20', messages: ['3', '4', '5', '6', '7'].map((o) => msg(o)) }],
+    ['all before it', '100', { partition: 1, highWatermark: '120', messages: ['98', '99'].map((o) => msg(o)) }],
+    ['an empty fetch', '0', { partition: 2, highWatermark: '0', messages: [] }],
+    ['offsets past 2^53', '9007199254740990', { partition: 0, highWatermark: '9007199254741000', messages: ['9007199254740989', '9007199254740990', '9007199254740993', '9007199254740994'].map((o) => msg(o)) }],
+    [
+      'an aborted transaction and control records',
+      '10',
+      {
+        partition: 0,
+        highWatermark: '30',
+        abortedTransactions: [{ producerId: '7', firstOffset: '12' }],
+        messages: [
+          msg('10'),
+          msg('11', '7', true),
+          msg('12', '7', true),
+          msg('13', '8', true),
+          msg('14', '7', true),
+          msg('15', '7', true, true, Buffer.from([0, 0, 0, 0])),
+          msg('16', '7', true),
+          msg('17', '-1', false, true),
+        ],
+      },
+    ],
+  ];
+  for (const [what, fetched, data] of cases) {
+    it(`keeps the same messages and answers the same: ${what}`, () => {
+      const a = view(new Stock('t', fetched, data));
+      const b = view(new Ours('t', fetched, data));
+      expect(b).toEqual(a);
+      expect(b.keys).toEqual(a.keys);
+    });
+  }
+  it('is an instance of kafkajs\'s Batch, with its methods', () => {
+    const b = new Ours('t', '0', { partition: 0, highWatermark: '1', messages: [msg('0')] });
+    expect(b).toBeInstanceOf(Stock);
   });
 });
