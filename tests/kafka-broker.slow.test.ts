@@ -4,7 +4,7 @@
  */
 import { Kafka, logLevel } from 'kafkajs';
 import { describe, expect, it } from 'vitest';
-import { parseBrokerList } from '../src/devtools/kafka-broker.js';
+import { freePorts, parseBrokerList } from '../src/devtools/kafka-broker.js';
 import { useSharedBroker } from './support/kafka-broker.js';
 
 const broker = useSharedBroker();
@@ -64,6 +64,15 @@ describe('test Kafka broker', () => {
     const handle = broker.get(ctx);
     expect(handle.how).toMatch(/MODEWATCH_KAFKA_BROKERS|testcontainers|jars/);
     console.info(`[kafka] broker start took ${broker.startMs()} ms (${handle.how})`);
+  });
+
+  it('hands out different ports for the listeners of one broker', async () => {
+    // Two ports taken one after the other can be the same one; Kafka then refuses to format its storage.
+    for (let i = 0; i < 50; i++) {
+      const [a, b] = await freePorts(2);
+      expect(a).not.toBe(b);
+      expect(a * b).toBeGreaterThan(0);
+    }
   });
 
   it('rejects a malformed MODEWATCH_KAFKA_BROKERS with a message naming the entry', () => {

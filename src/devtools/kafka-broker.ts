@@ -164,16 +164,32 @@ export function ensureKafkaJars(libs = defaultLibsDir(), log: (l: string) => voi
 
 /** Free loopback port: bind port 0, read it, close. Another process may take it before Kafka binds: startJarBroker retries. */
 export async function freePort(): Promise<number> {
-  return new Promise((resolvePort, reject) => {
-    const srv = createServer();
-    srv.unref();
-    srv.on('error', reject);
-    srv.listen(0, '127.0.0.1', () => {
-      const addr = srv.address();
-      const port = typeof addr === 'object' && addr !== null ? addr.port : 0;
-      srv.close(() => resolvePort(port));
-    });
-  });
+  return (await freePorts(1))[0];
+}
+
+/**
+ * n different free loopback ports: all n are bound at once before any is closed, so they differ (two calls of
+ * freePort() in a row can return the same port, which Kafka refuses for its broker and controller listeners).
+ */
+export async function freePorts(n: number): Promise<number[]> {
+  const servers = Array.from({ length: n }, () => createServer());
+  try {
+    return await Promise.all(
+      servers.map(
+        (srv) =>
+          new Promise<number>((resolvePort, reject) => {
+            srv.unref();
+            srv.on('error', reject);
+            srv.listen(0, '127.0.0.1', () => {
+              const addr = srv.address();
+              resolvePort(typeof addr === 'object' && addr !== null ? addr.port : 0);
+            });
+          }),
+      ),
+    );
+  } finally {
+    await Promise.all(servers.map((srv) => new Promise<void>((done) => (srv.listening ? srv.close(() => done()) : done()))));
+  }
 }
 
 /** KRaft cluster id: 16 random bytes, base64url without padding (what `kafka-storage random-uuid` prints). */
@@ -231,8 +247,7 @@ interface BrokerLayout {
 /** A temp dir with server.properties (fresh free ports) and log4j.properties, and its storage formatted. */
 async function prepareLayout(libs: string): Promise<BrokerLayout> {
   const dir = mkdtempSync(join(tmpdir(), 'modewatch-kafka-'));
-  const port = await freePort();
-  const ctrl = await freePort();
+  const [port, ctrl] = await freePorts(2);
   const props = readFileSync(join(SUPPORT_DIR, 'server.properties.template'), 'utf8')
     .replaceAll('@PORT@', String(port))
     .replaceAll('@CTRL@', String(ctrl))
