@@ -218,6 +218,31 @@ describe('vector stream monitor on simulated 2-D streams', () => {
     expect(m.vectorViews(m.current)).toEqual(whole.vectorViews(whole.current));
   });
 
+  it('a state saved by version 1 (statistics as S, nine constants per component) resumes to the same alerts', () => {
+    const total = 21_500;
+    const events: Float64Array[] = [];
+    simulate2d(total, 5, SCENARIOS.emerged, (x) => events.push(Float64Array.from(x)));
+    const reference: AlertTransition[] = [];
+    const whole = new VectorStreamMonitor('req', monitorConfig(), (t) => reference.push(t));
+    events.forEach((x, i) => whole.observeVector(x, 2, 1.7e12 + 10 * i, i));
+    const resumed: AlertTransition[] = [];
+    const listener = (t: AlertTransition) => resumed.push(t);
+    let m = new VectorStreamMonitor('req', monitorConfig(), listener);
+    events.forEach((x, i) => {
+      if (i === 20_200) {
+        const now = JSON.parse(JSON.stringify(m.exportState())) as VectorMonitorState;
+        expect(now.version).toBe(2);
+        const consts: number[] = [];
+        for (let j = 0; j < now.consts.length; j += 6) consts.push(...now.consts.slice(j, j + 6), Math.log(now.consts[j + 1]), Math.log(now.consts[j + 3]), Math.log(now.consts[j + 5]));
+        const old = { ...now, version: 1 as const, shifts: now.shifts.map((v, n) => (n % 3 === 0 ? Math.log(v) : v)), consts };
+        m = VectorStreamMonitor.importState(old, monitorConfig(), listener);
+      }
+      m.observeVector(x, 2, 1.7e12 + 10 * i, i);
+    });
+    expect(reference.some((t) => t.kind === 'mode_emerged')).toBe(true);
+    expect(resumed.map((t) => [t.kind, t.state, t.offset])).toEqual(reference.map((t) => [t.kind, t.state, t.offset]));
+  });
+
   it('rebaseline resolves firing alerts and the reference takes the current model', () => {
     const { transitions, monitor } = run('vanished', 22_000);
     expect(monitor.alerts().some((a) => a.state === 'firing')).toBe(true);
