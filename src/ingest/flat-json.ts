@@ -57,14 +57,8 @@ export class FlatJsonScanner {
     for (;;) {
       if (i >= n || s[i] !== 34 /* " */) return false;
       const ks = i + 1;
-      let ke = ks;
-      for (;;) {
-        if (ke >= n) return false;
-        const c = s[ke];
-        if (c === 34) break;
-        if (c === 92 /* \ */ || c < 32) return false;
-        ke++;
-      }
+      const ke = plainStringEnd(s, ks, n);
+      if (ke < 0) return false;
       const slot = this.which(s, ks, ke);
       i = skipWs(s, ke + 1, n);
       if (i >= n || s[i] !== 58 /* : */) return false;
@@ -72,14 +66,8 @@ export class FlatJsonScanner {
       const c = i < n ? s[i] : -1;
       if (c === 34) {
         const vs = i + 1;
-        let ve = vs;
-        for (;;) {
-          if (ve >= n) return false;
-          const d = s[ve];
-          if (d === 34) break;
-          if (d === 92 || d < 32) return false;
-          ve++;
-        }
+        const ve = plainStringEnd(s, vs, n);
+        if (ve < 0) return false;
         if (slot >= 0) {
           this.kind[slot] = FIELD_STRING;
           this.start[slot] = vs;
@@ -133,6 +121,17 @@ export class FlatJsonScanner {
 const NULL = [110, 117, 108, 108];
 const TRUE = [116, 114, 117, 101];
 const FALSE = [102, 97, 108, 115, 101];
+
+/** Where the string whose text starts at s[i] ends (its closing quote), or -1 when it has an escape or a control
+ *  character (JSON.parse decides those) or no end before n. */
+function plainStringEnd(s: Uint8Array, i: number, n: number): number {
+  for (; i < n; i++) {
+    const c = s[i];
+    if (c === 34 /* " */) return i;
+    if (c === 92 /* \ */ || c < 32) return -1;
+  }
+  return -1;
+}
 
 /** Whether the ASCII word w starts at s[i] (within n). */
 function word(s: Uint8Array, i: number, n: number, w: readonly number[]): boolean {

@@ -133,9 +133,6 @@ export class PackedRecordBatch implements RecordBatch {
   private text: string | null = null;
   /** True when every byte of the batch is ASCII (the usual case): then no value needs checking on its own. */
   private allAscii = false;
-  /** Where the current record's value lies (-1: none). */
-  private vs = -1;
-  private ve = -1;
   /** Index into b.headers of the next record with headers (records are read in order; rewinds if not). */
   private h = 0;
 
@@ -164,10 +161,12 @@ export class PackedRecordBatch implements RecordBatch {
     };
   }
 
+  /** The current record's value as text (or bytes, when they are not UTF-8 text), from where record() put it. */
   private valueText(): Buffer | string | null {
-    const vs = this.vs;
-    const ve = this.ve;
-    if (vs < 0) return null;
+    const r = this.rec;
+    if (r.valueBytes === null) return null;
+    const vs = r.valueStart as number;
+    const ve = r.valueEnd as number;
     if (this.text === null) {
       this.text = this.buf.toString('latin1');
       this.allAscii = isAscii(this.buf);
@@ -187,11 +186,9 @@ export class PackedRecordBatch implements RecordBatch {
     const ks = b.keyStart[i];
     r.key = ks < 0 ? null : this.keys.key(b.bytes, ks, b.keyEnd[i]);
     const vs = b.valueStart[i];
-    this.vs = vs;
-    this.ve = b.valueEnd[i];
     r.valueBytes = vs < 0 ? null : b.bytes;
     r.valueStart = vs;
-    r.valueEnd = this.ve;
+    r.valueEnd = b.valueEnd[i];
     r.headers = NO_HEADERS as RawRecord['headers'];
     const hs = b.headers;
     if (hs.length > 0) {

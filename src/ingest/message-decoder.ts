@@ -371,9 +371,10 @@ export function makeMessageDecoder(config: MessageDecoding, options: MessageDeco
   const v = cfg.value;
   if (v.format === 'number') {
     return (r, out) => {
-      if (r.value === null) return 'missing_field';
-      if (tooLong(r.value, maxBytes)) return 'oversized';
-      const text = asText(r.value);
+      const v = r.value; // once: a packed batch makes the text when asked
+      if (v === null) return 'missing_field';
+      if (tooLong(v, maxBytes)) return 'oversized';
+      const text = asText(v);
       const tr = time.from === 'header' ? timeValue(headerText(r, time.name), time.unit, out) : recordTime(r, out);
       if (tr !== null) return tr;
       const sr = outerStream(r, out);
@@ -409,9 +410,10 @@ export function makeMessageDecoder(config: MessageDecoding, options: MessageDeco
     const flat = [...paths, ...(keyPath ? [keyPath] : []), ...(timePath ? [timePath] : [])].every((p) => p.length === 1);
     if (!flat || options.fastPath === false) {
       return (r, out) => {
-        if (r.value === null) return 'missing_field';
-        if (tooLong(r.value, maxBytes)) return 'oversized';
-        return viaParse(asText(r.value), r, out);
+        const v = r.value; // once: a packed batch makes the text when asked
+        if (v === null) return 'missing_field';
+        if (tooLong(v, maxBytes)) return 'oversized';
+        return viaParse(asText(v), r, out);
       };
     }
     const nv = paths.length;
@@ -484,9 +486,10 @@ export function makeMessageDecoder(config: MessageDecoding, options: MessageDeco
   const cols = Array.isArray(v.column) ? v.column : [v.column];
   const delimiter = v.delimiter ?? ',';
   return (r, out) => {
-    if (r.value === null) return 'missing_field';
-    if (tooLong(r.value, maxBytes)) return 'oversized';
-    let text = asText(r.value);
+    const v = r.value; // once: a packed batch makes the text when asked
+    if (v === null) return 'missing_field';
+    if (tooLong(v, maxBytes)) return 'oversized';
+    let text = asText(v);
     // A message may carry its own line terminator.
     if (text.endsWith('\n')) text = text.slice(0, text.endsWith('\r\n') ? -2 : -1);
     const fields = splitCsvLine(text, delimiter);
